@@ -1,0 +1,241 @@
+"""The Python API for notebooks and scripts; the CLI calls the same functions.
+
+>>> import poise
+>>> study = poise.load_study("configs/toggle_switch.toml")
+>>> result = poise.run_study(study, "reports/toggle", size=256)   # doctest: +SKIP
+>>> result.summary["claims"]["bistable"]["probability"]           # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import platform
+import shutil
+import sys
+import time
+from functools import cached_property
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from poise import __version__
+from poise.describe import parameter_sets
+from poise.engine.assemble import assemble
+from poise.engine.progress import Progress
+from poise.engine.runner import execute
+from poise.engine.storage import PARTS, read_manifest, sha256, write_atomic, write_manifest
+from poise.errors import InputError
+from poise.study.loader import load_study
+from poise.study.spec import Study
+
+FINGERPRINT = ("study_sha256", "size", "seed", "chunk_size", "n_sets", "tool")
+
+
+@dataclasses.dataclass
+class RunResult:
+    """A finished run: its summary and (read on first use) its tables.
+
+    Attributes
+    ----------
+    directory : the run directory.
+    summary : the content of summary.json.
+    manifest : the content of manifest.json.
+    samples, outcomes, equilibria : pandas DataFrames (read from the parquet files).
+    """
+
+    directory: Path
+    summary: dict
+    manifest: dict
+
+    @cached_property
+    def samples(self) -> pd.DataFrame:
+        return pd.read_parquet(self.directory / "samples.parquet")
+
+    @cached_property
+    def outcomes(self) -> pd.DataFrame:
+        return pd.read_parquet(self.directory / "outcomes.parquet")
+
+    @cached_property
+    def equilibria(self) -> pd.DataFrame:
+        return pd.read_parquet(self.directory / "equilibria.parquet")
+
+    def __repr__(self) -> str:
+        samples = self.summary["samples"]
+        lines = [f"<poise run '{self.manifest.get('title', '')}' in {self.directory}>",
+                 f"  sets analysed {samples['analysed']}, failed {samples['failed']}, "
+                 f"independent {samples['independent']}"]
+        for name, claim in self.summary["claims"].items():
+            lo, hi = claim["ci95"]
+            lines.append(f"  P({name}) = {claim['probability']:.3f}  [{lo:.3f}, {hi:.3f}]")
+        return "\n".join(lines)
+
+
+def open_run(directory: str | Path) -> RunResult:
+    """Open a finished run directory."""
+    directory = Path(directory)
+    manifest = read_manifest(directory)
+    summary_path = directory / "summary.json"
+    if manifest is None or not manifest.get("complete") or not summary_path.exists():
+        raise InputError("not a finished poise run (no complete manifest.json and summary.json)", file=str(directory))
+    return RunResult(directory, json.loads(summary_path.read_text()), manifest)
+
+
+def run_study(study: Study, out: str | Path | None = None, *, size: int | None = None,
+              seed: int | None = None, jobs: int | None = None, scheduler: str | None = None,
+              resume: bool = False, progress: bool = False, chunk_size: int | None = None,
+              report: bool = True) -> RunResult:
+    """Run the whole study: sample, solve every set, summarise, write the report.
+
+    Parameters
+    ----------
+    study : from `load_study`.
+    out : run directory (default ``reports/<study file stem>``).
+    size, seed : override ``[sampling]`` size and seed.
+    jobs : worker processes (0 = all cores; default ``[run] jobs``).
+    scheduler : address of a Dask scheduler; chunks then run on its workers.
+    resume : continue an unfinished run in `out` (a plain rerun does that too when the
+        study and settings match).
+    progress : print a progress line on stderr.
+    chunk_size : parameter sets per chunk (default ``[run] chunk_size``).
+    report : write report.md, report.html, tables and figures.
+    """
+    from poise.equilibria.choice import choose_method
+    from poise.model import compile_model
+    from poise.sampling import make_design, map_to_parameters
+
+    study = dataclasses.replace(study, sampling=dataclasses.replace(
+        study.sampling, size=size or study.sampling.size,
+        seed=study.sampling.seed if seed is None else seed))
+    directory = Path(out) if out else Path("reports") / study.path.stem
+    chunk_size = chunk_size or study.run.chunk_size
+    jobs = study.run.jobs if jobs is None else jobs
+    started = time.time()
+
+    names = tuple(study.uncertain)
+    sobol = study.sensitivity.method == "sobol" and bool(names)
+    design = make_design(names, study.sampling.design, study.sampling.size, study.sampling.seed,
+                         sobol_indices=sobol, second_order=study.sensitivity.second_order)
+    params = map_to_parameters(design, study.uncertain)
+    model = compile_model(study)
+    method = choose_method(study, model)
+
+    manifest = _prepare_directory(directory, study, design.n_rows, chunk_size, resume)
+    manifest.update(solver=method, design=study.sampling.design)
+    write_manifest(directory, manifest)
+    bar = Progress(design.n_rows, enabled=progress)
+    manifest = execute(directory, manifest, str(study.path), study.text, params, method,
+                       jobs, scheduler, bar)
+
+    samples = pd.DataFrame({"sample_id": np.arange(design.n_rows, dtype=np.int64),
+                            "block": design.block.astype(str), "independent": design.independent})
+    for j, name in enumerate(names):
+        samples[name] = params[:, j]
+    outcomes, tallies = assemble(directory, manifest, samples)
+    summary = _summary(study, outcomes, tallies, design, sobol)
+    write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
+    manifest.update(complete=True, seconds=round(time.time() - started, 3))
+    write_manifest(directory, manifest)
+    if report:
+        from poise.report import write_report
+        write_report(directory)
+    return RunResult(directory, summary, manifest)
+
+
+def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool) -> dict:
+    from poise.analysis.summary import (claim_summary, equilibria_summary, sensitivity_summary,
+                                        stable_count_summary)
+
+    ok = outcomes["status"] == "ok"
+    independent_ok = int((ok & outcomes["independent"]).sum())
+    group = (len(design.names) * (2 if design.second_order else 1) + 2) if sobol else 1
+    return {
+        "tool": {"name": "poise", "version": __version__},
+        "samples": {"analysed": int(ok.sum()), "failed": int((~ok).sum()), "independent": independent_ok},
+        "claims": claim_summary(outcomes, study.claims),
+        "stable_count": stable_count_summary(outcomes),
+        "equilibria": equilibria_summary(tallies.presence, tallies.classes, independent_ok),
+        "sensitivity": sensitivity_summary(outcomes, study.claims, design.names, group,
+                                           study.sensitivity.second_order, study.sensitivity.resamples,
+                                           study.sampling.seed, study.sensitivity.method),
+    }
+
+
+def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: int, resume: bool) -> dict:
+    """Create the run directory, or check that an existing one belongs to this study."""
+    from poise.describe import describe_model
+    from poise.model.system import reduce
+
+    described = describe_model(study)
+    fresh = {
+        "tool": {"name": "poise", "version": __version__},
+        "title": study.title, "study_file": "study.toml", "study_sha256": sha256(study.text.encode()),
+        "states": list(study.states),
+        "reduced_states": list(reduce(study, study.nominal_values(), tuple(study.uncertain)).free),
+        "ode": described["ode"], "conserved": described["conserved"], "parameters": described["parameters"],
+        "claims": [{"name": c.name, "holds": c.holds} for c in study.claims],
+        "size": study.sampling.size, "seed": study.sampling.seed,
+        "sensitivity": study.sensitivity.method, "second_order": study.sensitivity.second_order,
+        "resamples": study.sensitivity.resamples, "n_sets": n_sets, "chunk_size": chunk_size,
+        "chunks": {}, "complete": False, "versions": _versions(),
+    }
+    existing = read_manifest(directory)
+    if existing is None:
+        if resume:
+            raise InputError("there is no run to resume here (no manifest.json)", file=str(directory))
+    else:
+        differences = [key for key in FINGERPRINT if existing.get(key) != fresh.get(key)]
+        if not differences:
+            fresh["chunks"] = existing.get("chunks", {})
+        elif resume or not existing.get("complete"):
+            raise InputError(
+                "this directory holds an unfinished run of a different study or settings "
+                f"(differs in: {', '.join(differences)}); resuming would mix results. "
+                "Run with another --out, or delete the directory to start again",
+                file=str(directory))
+        else:
+            shutil.rmtree(directory / PARTS, ignore_errors=True)
+    directory.mkdir(parents=True, exist_ok=True)
+    write_atomic(directory / "study.toml", study.text.encode())
+    return fresh
+
+
+def _versions() -> dict:
+    import importlib.metadata as metadata
+    versions = {"python": platform.python_version()}
+    for package in ("numpy", "scipy", "sympy", "SALib", "pandas", "pyarrow", "joblib", "matplotlib"):
+        try:
+            versions[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            pass
+    return versions
+
+
+# --- CLI glue --------------------------------------------------------------------
+
+def run_from_cli(args) -> int:
+    from poise.report import main_table_text
+
+    study = load_study(args.study)
+    for warning in study.warnings:
+        print(f"poise: warning: {warning}", file=sys.stderr)
+    out = Path(args.out) if args.out else Path("reports") / study.path.stem
+    try:
+        result = run_study(study, out, size=args.size, seed=args.seed, jobs=args.jobs,
+                           scheduler=args.scheduler, resume=args.resume, progress=not args.quiet)
+    except KeyboardInterrupt:
+        print(f"\npoise: interrupted; finished chunks are saved. Continue with:\n"
+              f"  poise run {args.study} --out {out} --resume", file=sys.stderr)
+        return 130
+    print(main_table_text(result.directory))
+    print(f"\nrun directory: {result.directory}  (report.html, summary.json, tables/, figures/)")
+    return 0
+
+
+def report_from_cli(args) -> int:
+    from poise.report import write_report
+    result = open_run(args.dir)
+    written = write_report(result.directory)
+    print(f"rebuilt {len(written)} files in {result.directory}")
+    return 0

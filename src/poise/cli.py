@@ -1,0 +1,146 @@
+"""The `poise` command: a thin shell over the library API.
+
+Exit status: 0 success; 2 invalid study file or arguments (one message, no
+traceback); 1 anything else.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from pathlib import Path
+
+from poise.errors import InputError
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str):  # one line and exit 2, as for a bad study file
+        self.exit(2, f"poise: {message} (see 'poise {self.prog.split()[-1]} --help')\n" if " " in self.prog
+                  else f"poise: {message} (see 'poise --help')\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="poise", description="How probable is a stability claim about an ODE model with uncertain parameters?")
+    parser.add_argument("--version", action="version", version=_version())
+    commands = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    check = commands.add_parser("check", help="validate a study file and show the model as poise reads it")
+    check.add_argument("study")
+    check.add_argument("--json", action="store_true", help="print the model as JSON")
+
+    inspect = commands.add_parser("inspect", help="every steady state at one parameter point")
+    inspect.add_argument("study")
+    inspect.add_argument("--at", action="append", default=[], metavar="NAME=VALUE",
+                         help="set a parameter (fixed or uncertain); repeat for several")
+    inspect.add_argument("--json", action="store_true")
+
+    run = commands.add_parser("run", help="the whole uncertainty study")
+    run.add_argument("study")
+    run.add_argument("--out", help="run directory (default: reports/<study file stem>/)")
+    run.add_argument("--size", type=_positive_int, help="base sample size N (overrides [sampling] size)")
+    run.add_argument("--seed", type=_non_negative_int, help="overrides [sampling] seed")
+    run.add_argument("--jobs", type=_non_negative_int, help="worker processes; 0 = all cores")
+    run.add_argument("--scheduler", help="address of a Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    run.add_argument("--resume", action="store_true", help="continue an unfinished run in --out")
+    run.add_argument("--quiet", action="store_true", help="no progress on stderr")
+
+    report = commands.add_parser("report", help="rebuild the report of a finished run")
+    report.add_argument("dir")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    try:
+        handler = {"check": _check, "inspect": _inspect, "run": _run, "report": _report}[args.command]
+        return handler(args)
+    except InputError as exc:
+        print(f"poise: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("poise: interrupted", file=sys.stderr)
+        return 130
+
+
+def _check(args) -> int:
+    from poise.describe import describe_model, describe_text
+    from poise.study.loader import load_study
+    study = load_study(args.study)
+    _warn(study.warnings)
+    description = describe_model(study)
+    print(json.dumps(description, indent=2) if args.json else describe_text(study, description))
+    return 0
+
+
+def _inspect(args) -> int:
+    from poise.inspect import inspect_point, inspect_text
+    from poise.study.loader import load_study
+    study = load_study(args.study)
+    _warn(study.warnings)
+    overrides = _assignments(args.at, study)
+    result = inspect_point(study, overrides)
+    print(json.dumps(result, indent=2) if args.json else inspect_text(study, result))
+    return 0
+
+
+def _run(args) -> int:
+    from poise.api import run_from_cli
+    return run_from_cli(args)
+
+
+def _report(args) -> int:
+    from poise.api import report_from_cli
+    return report_from_cli(args)
+
+
+def _assignments(items: list[str], study) -> dict[str, float]:
+    values = {}
+    known = set(study.parameters)
+    for item in items:
+        name, sep, text = item.partition("=")
+        name = name.strip()
+        if not sep:
+            raise InputError(f"--at expects NAME=VALUE, got '{item}'")
+        if name not in known:
+            raise InputError(f"--at {item}: '{name}' is not a parameter of {study.path}; parameters are {', '.join(study.parameters)}")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputError(f"--at {item}: '{text}' is not a number") from None
+        if not math.isfinite(value):
+            raise InputError(f"--at {item}: the value must be finite")
+        values[name] = value
+    return values
+
+
+def _warn(warnings) -> None:
+    for warning in warnings:
+        print(f"poise: warning: {warning}", file=sys.stderr)
+
+
+def _positive_int(text: str) -> int:
+    value = _non_negative_int(text)
+    if value < 1:
+        raise argparse.ArgumentTypeError("expected a whole number of at least 1")
+    return value
+
+
+def _non_negative_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got '{text}'") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError("expected a whole number of at least 0")
+    return value
+
+
+def _version() -> str:
+    from poise import __version__
+    return f"poise {__version__}"
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

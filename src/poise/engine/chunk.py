@@ -1,0 +1,134 @@
+"""One chunk's work: steady states, classes and claim outcomes for a batch of sets.
+
+Plain arrays in, two pandas tables out (the rows of equilibria.parquet and
+outcomes.parquet for these sets). Used by `poise inspect` for a single set too, so
+one code path serves both.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from poise.equilibria.finder import ZERO_TOLERANCE, FoundStates, find_steady_states
+from poise.model import CompiledModel
+from poise.stability.classify import CLASS_NAMES, Classification, classify
+from poise.study.spec import Study
+
+NODE = np.isin(np.arange(len(CLASS_NAMES)), [CLASS_NAMES.index("stable node"), CLASS_NAMES.index("unstable node")])
+FOCUS = np.isin(np.arange(len(CLASS_NAMES)), [CLASS_NAMES.index("stable focus"), CLASS_NAMES.index("unstable focus")])
+SADDLE = np.isin(np.arange(len(CLASS_NAMES)), [CLASS_NAMES.index("saddle"), CLASS_NAMES.index("saddle-focus")])
+
+
+@dataclass
+class ChunkResult:
+    """Rows for outcomes.parquet (`sets`) and equilibria.parquet (`equilibria`)."""
+
+    sets: pd.DataFrame
+    equilibria: pd.DataFrame
+    jacobians: np.ndarray       # (R, n, n) reduced Jacobians of the equilibria rows
+
+
+def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
+                 params: np.ndarray, solver_method: str = "newton") -> ChunkResult:
+    """Find, classify and judge every steady state of each parameter set.
+
+    Parameters
+    ----------
+    study : the study (claims, parameter names).
+    model : compiled with `params`' columns as its varying parameters.
+    sample_ids : (B,) identifiers of the sets.
+    params : (B, m) values of `model.varying`.
+    """
+    settings = study.solver
+    found = find_steady_states(model.kernels, params, model.magnitude(params),
+                               model.domain_low, model.domain_high, starts=settings.starts,
+                               deflation_rounds=settings.deflation_rounds,
+                               max_iterations=settings.max_iterations)
+    jacobians = model.kernels.jacobian(found.free, params[found.owner])
+    classes = classify(jacobians)
+    ok, reason = _mark_bad_jacobians(found, jacobians)
+
+    equilibria = _equilibria_table(study, found, classes, sample_ids)
+    sets = _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason)
+    keep = ok[found.owner]
+    return ChunkResult(sets=sets, equilibria=equilibria[keep].reset_index(drop=True),
+                       jacobians=jacobians[keep])
+
+
+def _mark_bad_jacobians(found: FoundStates, jacobians: np.ndarray):
+    ok, reason = found.ok.copy(), found.reason.copy()
+    bad = ~np.isfinite(jacobians).all(axis=(1, 2))
+    if bad.any():
+        sets = np.unique(found.owner[bad])
+        ok[sets] = False
+        reason[sets] = "the Jacobian is not finite at a steady state"
+    return ok, reason
+
+
+def labels(states: tuple[str, ...], full: np.ndarray) -> np.ndarray:
+    """Which states are zero at each steady state, e.g. "A>0, G=0"."""
+    if full.shape[0] == 0:
+        return np.array([], dtype=object)
+    signs = np.where(full > 0, ">0", np.where(full < 0, "<0", "=0"))
+    parts = np.char.add(np.array(states, dtype=object).astype(str), signs)
+    return np.array([", ".join(row) for row in parts], dtype=object)
+
+
+def _equilibria_table(study: Study, found: FoundStates, classes: Classification,
+                      sample_ids: np.ndarray) -> pd.DataFrame:
+    owner = found.owner
+    starts = np.searchsorted(owner, owner, side="left")
+    columns: dict[str, object] = {
+        "sample_id": sample_ids[owner].astype(np.int64),
+        "index": (np.arange(owner.size) - starts).astype(np.int64),
+    }
+    for j, state in enumerate(study.states):
+        columns[state] = found.full[:, j]
+    columns["label"] = labels(study.states, found.full)
+    columns["class"] = np.asarray(CLASS_NAMES, dtype=object)[classes.class_code]
+    columns["stability"] = np.asarray(classes.stability_names, dtype=object)
+    columns["margin"] = classes.margin
+    columns["oscillatory"] = classes.oscillatory
+    for i in range(classes.eigenvalues.shape[1]):
+        columns[f"eig_re_{i}"] = classes.eigenvalues[:, i].real
+        columns[f"eig_im_{i}"] = classes.eigenvalues[:, i].imag
+    columns["trace"] = classes.trace
+    columns["determinant"] = classes.determinant
+    columns["discriminant"] = classes.discriminant
+    return pd.DataFrame(columns)
+
+
+def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason) -> pd.DataFrame:
+    batch = sample_ids.size
+    owner = found.owner
+    stable = classes.stability_code == 0
+    n_steady = np.bincount(owner, minlength=batch)
+    n_stable = np.bincount(owner, weights=stable, minlength=batch).astype(np.int64)
+    frame = pd.DataFrame({
+        "sample_id": sample_ids.astype(np.int64),
+        "status": np.where(ok, "ok", "failed"),
+        "reason": reason.astype(str),
+        "n_steady": pd.array(np.where(ok, n_steady, 0), dtype="Int64"),
+        "n_stable": pd.array(np.where(ok, n_stable, 0), dtype="Int64"),
+    })
+    frame.loc[~ok, ["n_steady", "n_stable"]] = pd.NA
+    if study.claims:
+        steady = {state: found.full[:, j] for j, state in enumerate(study.states)}
+        code = classes.class_code
+        steady.update(stable=stable, unstable=classes.stability_code == 1,
+                      undetermined=classes.stability_code == 2, node=NODE[code],
+                      focus=FOCUS[code], saddle=SADDLE[code], oscillatory=classes.oscillatory,
+                      margin=classes.margin)
+        sets = {name: np.full(batch, value) for name, value in model.fixed_values.items()}
+        sets.update({name: params[:, j] for j, name in enumerate(model.varying)})
+        for claim in study.claims:
+            values = claim.evaluate(steady, owner, sets, batch)
+            frame[claim.name] = pd.array(np.where(ok, values, False), dtype="boolean")
+            frame.loc[~ok, claim.name] = pd.NA
+    return frame
+
+
+__all__ = ["ChunkResult", "analyse_sets", "labels", "ZERO_TOLERANCE"]

@@ -1,0 +1,61 @@
+"""The symbolic model, its conservation laws, and compiled numeric kernels."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from poise.model.kernels import Kernels, compile_kernels
+from poise.model.system import ReducedSystem, check_conservation, reduce
+from poise.study.spec import Study
+
+
+@dataclass(frozen=True)
+class CompiledModel:
+    """A study's model with fixed values substituted, ready for batches.
+
+    `varying` names the columns of the parameter arrays the kernels take;
+    `fixed_magnitude` is the largest |value| among the substituted parameters, used to
+    scale solver starts.
+    """
+
+    system: ReducedSystem
+    kernels: Kernels
+    varying: tuple[str, ...]
+    fixed_values: dict[str, float]
+    domain_low: np.ndarray
+    domain_high: np.ndarray
+
+    @property
+    def states(self) -> tuple[str, ...]:
+        return self.system.states
+
+    @property
+    def dimension(self) -> int:
+        return self.kernels.n
+
+    def magnitude(self, params: np.ndarray) -> np.ndarray:
+        """A typical parameter size per set: the largest |value| of any parameter."""
+        fixed = max((abs(v) for v in self.fixed_values.values()), default=0.0)
+        varying = np.abs(params).max(axis=1, initial=0.0) if params.size else np.zeros(params.shape[0])
+        return np.maximum(fixed, np.nan_to_num(varying, nan=0.0, posinf=0.0))
+
+
+def compile_model(study: Study, values: Mapping[str, float] | None = None,
+                  varying: Sequence[str] | None = None) -> CompiledModel:
+    """Compile `study` with `varying` parameters left free (default: the uncertain
+    ones) and every other parameter at `values` (default: fixed and nominal values)."""
+    varying = tuple(study.uncertain) if varying is None else tuple(varying)
+    values = dict(study.nominal_values() if values is None else values)
+    fixed_values = {k: float(v) for k, v in values.items() if k not in varying}
+    system = reduce(study, fixed_values, varying)
+    kernels = compile_kernels(system)
+    low = np.array([study.domain[s][0] for s in study.states])
+    high = np.array([study.domain[s][1] for s in study.states])
+    return CompiledModel(system=system, kernels=kernels, varying=varying,
+                         fixed_values=fixed_values, domain_low=low, domain_high=high)
+
+
+__all__ = ["CompiledModel", "Kernels", "ReducedSystem", "check_conservation", "compile_model"]

@@ -1,0 +1,101 @@
+"""Numeric kernels compiled from the reduced system.
+
+Each kernel takes X of shape (B, n) (free states) and P of shape (B, m) (varying
+parameters) and returns arrays with the batch dimension first. They are generated
+with `sympy.lambdify` from expressions poise built itself (never from user text) and
+evaluate whole batches with numpy, so there is no Python loop over parameter sets.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import reduce as fold
+from typing import Callable
+
+import numpy as np
+import sympy
+
+from poise.model.system import ReducedSystem
+
+_MIN = sympy.Function("poise_min")
+_MAX = sympy.Function("poise_max")
+_NUMERIC = {
+    "poise_min": lambda *args: fold(np.minimum, args),
+    "poise_max": lambda *args: fold(np.maximum, args),
+}
+
+
+@dataclass(frozen=True)
+class Kernels:
+    """Vectorised f, J and helpers for one reduced system."""
+
+    n: int
+    m: int
+    free_columns: tuple[int, ...]   # position of each free state among all states
+    rhs: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    jacobian: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    rhs_and_jacobian: Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]
+    term_size: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    full_states: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    scales: Callable[[np.ndarray], np.ndarray]
+
+
+def compile_kernels(system: ReducedSystem) -> Kernels:
+    """Compile f (reduced right-hand side), J (its Jacobian), the size of f's terms (for
+    scale-aware residual tests), the full state vector, and per-state size bounds."""
+    x = system.free_symbols
+    p = system.parameter_symbols
+    n, m = len(x), len(p)
+    rhs = list(system.rhs)
+    jac = list(system.jacobian) if n else []
+    terms = [sum(sympy.Abs(t) for t in sympy.Add.make_args(f)) for f in rhs]
+    state_symbols = {s: sympy.Symbol(s, real=True) for s in system.states}
+    full = [system.eliminated.get(s, state_symbols[s]) for s in system.states]
+    scale_exprs = [system.scales[s] if system.scales[s] is not None else sympy.nan for s in system.free]
+
+    rhs_fn = _vector_kernel(x, p, rhs)
+    jac_fn = _vector_kernel(x, p, jac)
+    term_fn = _vector_kernel(x, p, terms)
+    full_fn = _vector_kernel(x, p, full)
+    scale_fn = _vector_kernel([], p, scale_exprs)
+
+    both_fn = _vector_kernel(x, p, rhs + jac)  # one pass shares common subexpressions
+
+    def jacobian(X: np.ndarray, P: np.ndarray) -> np.ndarray:
+        return jac_fn(X, P).reshape(X.shape[0], n, n)
+
+    def rhs_and_jacobian(X: np.ndarray, P: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        both = both_fn(X, P)
+        return both[:, :n], both[:, n:].reshape(X.shape[0], n, n)
+
+    free_columns = tuple(system.states.index(s) for s in system.free)
+    return Kernels(n=n, m=m, free_columns=free_columns, rhs=rhs_fn, jacobian=jacobian,
+                   rhs_and_jacobian=rhs_and_jacobian, term_size=term_fn,
+                   full_states=full_fn, scales=lambda P: scale_fn(np.zeros((P.shape[0], 0)), P))
+
+
+def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
+    """A function (X (B, n), P (B, m)) -> (B, len(exprs)) evaluating `exprs`."""
+    exprs = [_numeric_friendly(e) for e in exprs]
+    count = len(exprs)
+    if count == 0:
+        return lambda X, P: np.zeros((X.shape[0], 0))
+    function = sympy.lambdify([*x, *p], exprs, modules=[_NUMERIC, "numpy"], cse=True)
+
+    def kernel(X: np.ndarray, P: np.ndarray) -> np.ndarray:
+        batch = X.shape[0]
+        with np.errstate(all="ignore"):
+            values = function(*X.T, *P.T)
+        out = np.empty((batch, count))
+        for j, value in enumerate(values):
+            out[:, j] = value
+        return out
+
+    return kernel
+
+
+def _numeric_friendly(expr: sympy.Expr) -> sympy.Expr:
+    """Replace Min/Max by elementwise numpy versions (sympy prints them as reductions)."""
+    if not isinstance(expr, sympy.Basic):
+        expr = sympy.Float(expr)
+    return expr.replace(sympy.Min, lambda *a: _MIN(*a)).replace(sympy.Max, lambda *a: _MAX(*a))

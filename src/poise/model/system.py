@@ -1,0 +1,148 @@
+"""The symbolic system on its conservation class.
+
+Where linear conservation laws c · x = T hold, one state per law is eliminated
+(x_pivot written through the total T and the other states). The steady states are
+solved for the remaining ("free") states, and stability is judged on the Jacobian of
+the reduced right-hand side — the Jacobian restricted to the conservation class, so
+structural zero eigenvalues never appear.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping, Sequence
+
+import sympy
+
+from poise.errors import InputError
+from poise.model.conservation import find_laws, format_law, is_conserved, law_vector, spans
+from poise.study.spec import Study
+
+
+@dataclass(frozen=True)
+class ReducedSystem:
+    """The model ready for compilation.
+
+    Attributes
+    ----------
+    states : all states, in study order.
+    free : the states solved for (after eliminating one state per conservation law).
+    eliminated : state -> expression in the free states and the totals.
+    rhs : reduced right-hand sides, one per free state.
+    parameters : parameters left symbolic (the varying ones), in kernel column order.
+    domain : state -> (low, high), for every state.
+    scales : state -> a bound on the state's size known from the model (conserved total
+        or finite domain limit) as an expression in parameters, or None.
+    """
+
+    states: tuple[str, ...]
+    free: tuple[str, ...]
+    eliminated: dict[str, sympy.Expr]
+    rhs: tuple[sympy.Expr, ...]
+    parameters: tuple[str, ...]
+    domain: dict[str, tuple[float, float]]
+    scales: dict[str, sympy.Expr | None]
+
+    @property
+    def jacobian(self) -> sympy.Matrix:
+        return sympy.Matrix(self.rhs).jacobian(sympy.Matrix(self.free_symbols))
+
+    @property
+    def free_symbols(self) -> list[sympy.Symbol]:
+        return [sympy.Symbol(s, real=True) for s in self.free]
+
+    @property
+    def parameter_symbols(self) -> list[sympy.Symbol]:
+        return [sympy.Symbol(p, real=True) for p in self.parameters]
+
+
+def check_conservation(study: Study) -> list[dict[str, sympy.Expr]]:
+    """Verify declared totals and demand that every law of the model is declared.
+
+    Returns the declared laws as coefficient vectors ({state: coefficient}).
+    """
+    states = study.states
+    declared = []
+    for total, combination in study.conserved.items():
+        vector = law_vector(combination, states)
+        if vector is None or all(c == 0 for c in vector):
+            raise InputError("expected a linear combination of states with numeric coefficients, e.g. \"E + C\"",
+                             file=str(study.path), table="model.conserved", key=total)
+        if not is_conserved(vector, study.ode, states):
+            raise InputError(f"{combination} is not conserved by the model: the weighted sum of its equations is not zero",
+                             file=str(study.path), table="model.conserved", key=total)
+        if spans(declared, vector):
+            raise InputError("this total follows from the other declared totals; remove it",
+                             file=str(study.path), table="model.conserved", key=total)
+        declared.append(vector)
+    for law in find_laws(study.ode, states):
+        vector = [law.get(s, 0) for s in states]
+        if not spans(declared, vector):
+            name = "_".join(law) + "_total"
+            raise InputError(
+                f"the model conserves {format_law(law)}, so its steady states form continua unless the total is fixed; "
+                f"add the line  {name} = \"{format_law(law)}\"  and give {name} a value in [parameters]",
+                file=str(study.path), table="model.conserved", key=name)
+    return [dict(zip(states, v)) for v in declared]
+
+
+def reduce(study: Study, values: Mapping[str, float], varying: Sequence[str]) -> ReducedSystem:
+    """Substitute fixed parameter values, eliminate conserved states.
+
+    Parameters
+    ----------
+    study : Study
+    values : values for every parameter not in `varying`.
+    varying : parameters kept symbolic, in the column order of the kernels.
+    """
+    laws = check_conservation(study)
+    state_symbols = {s: sympy.Symbol(s, real=True) for s in study.states}
+    substitution = {sympy.Symbol(p, real=True): _number(v) for p, v in values.items() if p not in varying}
+
+    eliminated: dict[str, sympy.Expr] = {}
+    if laws:
+        pivots = _pivots(laws, study.states)
+        equations = [sum(c * state_symbols[s] for s, c in law.items()) - sympy.Symbol(total, real=True)
+                     for law, total in zip(laws, study.conserved)]
+        solution = sympy.solve(equations, [state_symbols[p] for p in pivots], dict=True)[0]
+        eliminated = {p: sympy.simplify(solution[state_symbols[p]]).subs(substitution) for p in pivots}
+    free = tuple(s for s in study.states if s not in eliminated)
+    elimination = {state_symbols[s]: e for s, e in eliminated.items()}
+    rhs = tuple(study.ode[s].subs(elimination).subs(substitution) for s in free)
+    scales = _scales(study, laws, substitution)
+    return ReducedSystem(states=study.states, free=free, eliminated=eliminated, rhs=rhs,
+                         parameters=tuple(varying), domain=dict(study.domain), scales=scales)
+
+
+def _pivots(laws, states) -> list[str]:
+    """One state per law to eliminate: row-reduce the law matrix and take pivot columns,
+    preferring states that come late in the study's order (keep the first states free)."""
+    reversed_states = list(reversed(states))
+    matrix = sympy.Matrix([[law.get(s, 0) for s in reversed_states] for law in laws])
+    _, pivot_columns = matrix.rref()
+    return [reversed_states[i] for i in pivot_columns]
+
+
+def _scales(study: Study, laws, substitution) -> dict[str, sympy.Expr | None]:
+    """A size bound for each state: T/c from a law with non-negative coefficients, or a
+    finite domain limit."""
+    scales: dict[str, sympy.Expr | None] = {}
+    for state in study.states:
+        bound = None
+        for law, total in zip(laws, study.conserved):
+            if state in law and all(c > 0 for c in law.values()):
+                bound = (sympy.Symbol(total, real=True) / law[state]).subs(substitution)
+                break
+        low, high = study.domain[state]
+        if bound is None and math.isfinite(high) and math.isfinite(low):
+            bound = sympy.Float(max(abs(low), abs(high)))
+        scales[state] = bound
+    return scales
+
+
+def _number(value: float) -> sympy.Expr:
+    """Whole numbers stay integers so that x**n remains a polynomial power."""
+    if float(value).is_integer() and abs(value) < 2**53:
+        return sympy.Integer(int(value))
+    return sympy.Float(value)

@@ -1,0 +1,296 @@
+"""Build the report's tables (plain `Table` objects) from a loaded run."""
+
+from __future__ import annotations
+
+import math
+
+from .load import RunData
+from .readings import fmt_value, priority_reading, regional_reading
+from .regional import ks_regional
+from .tables import Column, Interval, Table
+
+__all__ = [
+    "CLASS_ORDER", "describe_distribution", "study_table", "parameters_table",
+    "failures_table", "claims_table", "stable_count_table", "classes_table",
+    "sobol_claims", "sobol_table", "priority_table", "regional_results",
+    "regional_table", "is_rough",
+]
+
+CLASS_ORDER = ["stable node", "stable focus", "unstable node", "unstable focus",
+               "saddle", "saddle-focus", "center", "non-hyperbolic"]
+ROUGH_WIDTH = 0.1  # interval width beyond which an index needs more samples (design.md)
+
+_DESIGN_WORDS = {"sobol": "scrambled Sobol sequence (quasi-random)",
+                 "lhs": "Latin hypercube", "random": "independent random draws"}
+
+
+def _interval(pair) -> Interval:
+    if not pair or len(pair) != 2:
+        return Interval(math.nan, math.nan)
+    lo, hi = pair
+    return Interval(math.nan if lo is None else float(lo), math.nan if hi is None else float(hi))
+
+
+def _float(value) -> float:
+    return math.nan if value is None else float(value)
+
+
+def describe_distribution(spec: dict) -> str:
+    """Plain words for a parameter's distribution as given in the manifest."""
+    if "dist" not in spec:
+        return f"fixed at {fmt_value(spec.get('value'))}"
+    kind = spec["dist"]
+    v = {k: fmt_value(x) for k, x in spec.items() if k != "dist"}
+    truncation = ""
+    if "low" in spec or "high" in spec:
+        truncation = f", cut to [{v.get('low', '-inf')}, {v.get('high', 'inf')}]"
+    if kind == "uniform":
+        return f"uniform on [{v.get('low')}, {v.get('high')}]"
+    if kind == "loguniform":
+        return f"log-uniform on [{v.get('low')}, {v.get('high')}]"
+    if kind == "normal":
+        return f"normal, mean {v.get('mean')}, sd {v.get('sd')}{truncation}"
+    if kind == "lognormal":
+        return f"log-normal, median {v.get('median')}, geometric sd {v.get('gsd')}{truncation}"
+    if kind == "triangular":
+        return f"triangular on [{v.get('low')}, {v.get('high')}], mode {v.get('mode')}"
+    details = ", ".join(f"{k} {x}" for k, x in v.items() if k != "nominal")
+    return f"{kind}, {details}" if details else str(kind)
+
+
+def study_table(run: RunData) -> Table:
+    """Model, design and bookkeeping of the run."""
+    m, s = run.manifest, run.summary
+    rows: list[list] = [["Title", run.title]]
+    states = m.get("states", [])
+    rows.append(["States", ", ".join(states)])
+    reduced = m.get("reduced_states", states)
+    if list(reduced) != list(states):
+        rows.append(["States left after conservation", ", ".join(reduced)])
+    for state, expr in m.get("ode", {}).items():
+        rows.append([f"d{state}/dt", expr])
+    for total, expr in m.get("conserved", {}).items():
+        rows.append(["Conserved total", f"{total} = {expr}"])
+    params = m.get("parameters", {})
+    fixed = [f"{k} = {fmt_value(spec.get('value'))}" for k, spec in params.items()
+             if isinstance(spec, dict) and "dist" not in spec]
+    if fixed:
+        rows.append(["Fixed parameters", ", ".join(fixed)])
+    rows.append(["Uncertain parameters", ", ".join(run.uncertain_parameters) or "none"])
+    design = m.get("design")
+    rows.append(["Design", _DESIGN_WORDS.get(design, str(design))])
+    rows.append(["Base sample size", m.get("size")])
+    rows.append(["Parameter sets in total", m.get("n_sets")])
+    rows.append(["Seed", m.get("seed")])
+    method = m.get("sensitivity", "none")
+    if method == "sobol":
+        resamples = m.get("resamples")
+        words = "Sobol indices"
+        if resamples:
+            words += f", intervals from {resamples} bootstrap resamples"
+        if m.get("second_order"):
+            words += ", second order requested"
+    else:
+        words = "none"
+    rows.append(["Sensitivity analysis", words])
+    if m.get("solver"):
+        rows.append(["Steady-state solver", m.get("solver")])
+    version = (s.get("tool") or m.get("tool") or {}).get("version", "unknown")
+    rows.append(["poise version", version])
+    if m.get("study_sha256"):
+        rows.append(["Study file SHA-256", m["study_sha256"]])
+    counts = s.get("samples", {})
+    rows.append(["Sets analysed", counts.get("analysed")])
+    rows.append(["Sets that failed (excluded)", counts.get("failed")])
+    rows.append(["Independent sets behind the probabilities", counts.get("independent")])
+    rows = [[item, value] for item, value in rows]
+    return Table("study", "Model, design and run", [Column("Item"), Column("Value", wide=True)], rows)
+
+
+def parameters_table(run: RunData) -> Table:
+    """Each parameter: fixed or uncertain, its distribution and nominal value."""
+    rows = []
+    for name, spec in run.manifest.get("parameters", {}).items():
+        if not isinstance(spec, dict):
+            continue
+        uncertain = "dist" in spec
+        nominal = spec.get("nominal") if uncertain else spec.get("value")
+        rows.append([name, "uncertain" if uncertain else "fixed",
+                     describe_distribution(spec), _float(nominal)])
+    return Table("parameters", "Parameters",
+                 [Column("Parameter"), Column("Kind"), Column("Distribution", wide=True),
+                  Column("Nominal value", "number")], rows)
+
+
+def failures_table(run: RunData) -> Table | None:
+    """Why parameter sets failed, with counts; None when nothing failed."""
+    samples = run.samples
+    if samples.empty or "status" not in samples.columns:
+        return None
+    failed = samples.loc[samples["status"] != "ok"]
+    if failed.empty:
+        return None
+    reasons = failed.get("reason")
+    counts = (reasons.fillna("").replace("", "no reason recorded") if reasons is not None
+              else failed["status"]).value_counts()
+    ordered = sorted(counts.items(), key=lambda item: (-item[1], str(item[0])))
+    return Table("failures", "Parameter sets that could not be analysed",
+                 [Column("Reason", wide=True), Column("Sets", "int")],
+                 [[reason, int(n)] for reason, n in ordered],
+                 note="These sets are excluded from every probability and index.")
+
+
+def claims_table(run: RunData) -> Table | None:
+    """Claim probabilities with 95 % Wilson intervals; None without claims."""
+    claims = run.summary.get("claims", {})
+    if not claims:
+        return None
+    holds = {c.get("name"): c.get("holds") for c in run.manifest.get("claims", [])}
+    rows = []
+    for name in run.claim_names:
+        entry = claims.get(name)
+        if entry is None:
+            continue
+        rows.append([name, entry.get("holds", holds.get(name, "")), _float(entry.get("probability")),
+                     _interval(entry.get("ci95")), entry.get("successes"), entry.get("n")])
+    return Table("claims", "How probable each claim is",
+                 [Column("Claim"), Column("Holds when", wide=True), Column("Probability", "prob"),
+                  Column("95 % interval", "interval"), Column("Sets where it holds", "int"),
+                  Column("Sets", "int")], rows,
+                 note="Intervals are 95 % Wilson score intervals over the independent sets.")
+
+
+def _count_key(key: str):
+    try:
+        return (0, int(key))
+    except ValueError:
+        return (1, key)
+
+
+def stable_count_table(run: RunData) -> Table:
+    """Distribution of the number of stable steady states per set."""
+    dist = run.summary.get("stable_count", {})
+    rows = [[str(k), _float(dist[k].get("probability")), _interval(dist[k].get("ci95"))]
+            for k in sorted(dist, key=_count_key)]
+    return Table("stable_count", "Number of stable steady states per parameter set",
+                 [Column("Stable steady states"), Column("Probability", "prob"),
+                  Column("95 % interval", "interval")], rows)
+
+
+def classes_table(run: RunData) -> Table:
+    """For each steady-state label: how often present, and its class when present."""
+    labels = run.summary.get("equilibria", {})
+    seen = {c for entry in labels.values() for c in entry.get("classes", {})}
+    classes = [c for c in CLASS_ORDER if c in seen] + sorted(seen - set(CLASS_ORDER))
+    columns = [Column("Steady state (zero states)"), Column("Present in share of sets", "prob")]
+    columns += [Column(c, "prob") for c in classes]
+    rows = []
+    for label in sorted(labels):
+        entry = labels[label]
+        shares = entry.get("classes", {})
+        rows.append([label, _float(entry.get("present"))] + [_float(shares.get(c, 0.0)) for c in classes])
+    return Table("classes", "Kind of each steady state",
+                 columns, rows,
+                 note="Class shares are fractions of the sets where that steady state exists.")
+
+
+def sobol_claims(run: RunData) -> list[tuple[str, dict]]:
+    """(claim, entry) for the claims that have Sobol indices, in claim order."""
+    sens = run.summary.get("sensitivity", {})
+    return [(name, sens[name]) for name in run.claim_names
+            if name in sens and sens[name].get("method") == "sobol"]
+
+
+def _width(interval: Interval) -> float:
+    return interval.hi - interval.lo
+
+
+def is_rough(entry: dict, param: str) -> bool:
+    """An index of ``param`` is flagged, or either interval is wider than 0.1."""
+    if param in entry.get("flags", {}):
+        return True
+    widths = [_width(_interval(entry.get(key, {}).get(param))) for key in ("S1_ci95", "ST_ci95")]
+    return any(w > ROUGH_WIDTH for w in widths if not math.isnan(w))
+
+
+def _params_of(entry: dict) -> list[str]:
+    return list(entry.get("ST", {}) or entry.get("S1", {}))
+
+
+def sobol_table(run: RunData) -> Table | None:
+    """First-order and total Sobol indices with intervals, per claim and parameter."""
+    entries = sobol_claims(run)
+    if not entries:
+        return None
+    rows = []
+    for claim, entry in entries:
+        for param in _params_of(entry):
+            rows.append([claim, param, _float(entry.get("S1", {}).get(param)),
+                         _interval(entry.get("S1_ci95", {}).get(param)),
+                         _float(entry.get("ST", {}).get(param)),
+                         _interval(entry.get("ST_ci95", {}).get(param)),
+                         "more samples needed" if is_rough(entry, param) else ""])
+    return Table("sobol", "Sobol sensitivity indices",
+                 [Column("Claim"), Column("Parameter"), Column("S1", "index"),
+                  Column("S1 95 % interval", "interval"), Column("ST", "index"),
+                  Column("ST 95 % interval", "interval"), Column("Note")], rows)
+
+
+def priority_table(run: RunData) -> Table | None:
+    """Parameters ranked per claim by how much knowing them exactly would settle it."""
+    entries = sobol_claims(run)
+    if not entries:
+        return None
+    params_spec = run.manifest.get("parameters", {})
+    rows = []
+    for claim, entry in entries:
+        s1 = entry.get("S1", {})
+        st = entry.get("ST", {})
+        ranked = sorted(_params_of(entry),
+                        key=lambda p: (-_nan_low(s1.get(p)), -_nan_low(st.get(p)), p))
+        for rank, param in enumerate(ranked, start=1):
+            nominal = (params_spec.get(param) or {}).get("nominal")
+            reading = priority_reading(_float(s1.get(param)), _float(st.get(param)),
+                                       nominal=nominal, rough=is_rough(entry, param))
+            rows.append([claim, rank, param, _float(s1.get(param)), _float(st.get(param)), reading])
+    return Table("priorities", "Parameters ranked by how much knowing them would settle each claim",
+                 [Column("Claim"), Column("Rank", "int"), Column("Parameter"),
+                  Column("S1", "index"), Column("ST", "index"), Column("Reading", wide=True)],
+                 rows,
+                 note="S1: expected share of the variance in whether the claim holds that would "
+                      "disappear if the parameter were known exactly. ST below 0.01: the parameter "
+                      "can be fixed at its nominal value.")
+
+
+def _nan_low(value) -> float:
+    value = _float(value)
+    return -math.inf if math.isnan(value) else value
+
+
+def regional_results(run: RunData) -> dict[str, dict[str, dict]]:
+    """KS regional sensitivity of every claim over the independent analysed sets."""
+    chosen = run.independent_ok()
+    params = [p for p in run.uncertain_parameters if p in run.samples.columns]
+    if chosen.empty or not params:
+        return {}
+    values = run.parameters_of(chosen["sample_id"])
+    return {claim: ks_regional(values, chosen[claim], params)
+            for claim in run.claim_names if claim in chosen.columns}
+
+
+def regional_table(run: RunData, results: dict[str, dict[str, dict]]) -> Table | None:
+    """KS distance per claim and parameter, strongest first, with a reading."""
+    if not results:
+        return None
+    rows = []
+    for claim, per_param in results.items():
+        ordered = sorted(per_param.items(), key=lambda item: (-_nan_low(item[1]["ks"]), item[0]))
+        for param, r in ordered:
+            rows.append([claim, param, r["ks"], r["p_value"], r["n_true"], r["n_false"],
+                         regional_reading(r["ks"], r["p_value"], r["median_true"], r["median_false"])])
+    return Table("regional", "Where in each parameter's range the claim holds",
+                 [Column("Claim"), Column("Parameter"), Column("KS distance", "prob"),
+                  Column("p-value", "pvalue"), Column("Sets where it holds", "int"),
+                  Column("Sets where it fails", "int"), Column("Reading", wide=True)], rows,
+                 note="KS distance: largest gap between the parameter's cumulative distributions "
+                      "in sets where the claim holds and where it fails (0 = same, 1 = separate).")

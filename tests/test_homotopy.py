@@ -1,0 +1,346 @@
+"""Homotopy continuation for polynomial and rational steady-state systems.
+
+Each mathematical check compares with a source outside poise: numpy.roots (companion
+matrix eigenvalues) and sympy (resultants, exact real roots) as reference libraries,
+hand elimination, or a closed form from the literature.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import sympy
+
+from poise.equilibria import homotopy
+from poise.equilibria.homotopy import HomotopyResult, generic_root_count, solve_batch
+from poise.equilibria.polynomial import PolynomialSystem, polynomial_form
+
+x, y, z, u, v = sympy.symbols("x y z u v", real=True)
+a, b, c, a1, a2, k, K, n = sympy.symbols("a b c a1 a2 k K n", real=True)
+
+
+def _real_roots(coefficients, imag_tol=1e-7):
+    """Real roots of a univariate polynomial (highest power first) by numpy.roots,
+    plus a flag for near-degenerate cases (near-double roots), where the number of
+    real roots is ill-posed in floating point and the point is skipped."""
+    roots = np.roots(coefficients)
+    size = 1.0 + np.abs(roots)
+    real = np.abs(roots.imag) <= imag_tol * size
+    near_real_pair = (~real & (np.abs(roots.imag) <= 1e-4 * size)).any()
+    r = np.sort(roots[real].real)
+    close = r.size > 1 and np.min(np.diff(r)) < 1e-4 * (1.0 + np.abs(r).max())
+    return r, bool(near_real_pair or close)
+
+
+def _found(result: HomotopyResult, i: int) -> np.ndarray:
+    return result.roots[i, :result.count[i]]
+
+
+# --------------------------------------------------------------------- one-state cubic
+
+
+def test_cubic_matches_numpy_roots_at_500_points():
+    # x' = a + b x - x^3: one or three real steady states
+    system = polynomial_form([a + b * x - x**3], [x], [a, b])
+    rng = np.random.default_rng(11)
+    params = rng.uniform(-2.0, 2.0, size=(500, 2))
+    result = solve_batch(system, params)
+    assert (result.status == 0).all()
+    checked = 0
+    for i, (av, bv) in enumerate(params):
+        # discriminant of x^3 - b x - a; near zero the real-root count is ill-posed
+        if abs(4 * bv**3 - 27 * av**2) < 1e-6:
+            continue
+        reference, _ = _real_roots([-1.0, 0.0, bv, av])  # reference library: numpy.roots
+        got = _found(result, i)[:, 0]
+        assert got.size == reference.size, (av, bv)
+        np.testing.assert_allclose(got, reference, rtol=1e-9, atol=1e-9)
+        checked += 1
+    assert checked > 480
+    assert set(np.unique(result.count)) == {1, 3}
+
+
+def test_cubic_matches_sympy_real_roots_exactly_at_rational_points():
+    system = polynomial_form([a + b * x - x**3], [x], [a, b])
+    points = [(sympy.Rational(1, 3), sympy.Rational(2)), (sympy.Rational(-7, 5), sympy.Rational(3, 2)),
+              (sympy.Rational(0), sympy.Rational(1)), (sympy.Rational(5, 2), sympy.Rational(-1, 4))]
+    result = solve_batch(system, np.array(points, dtype=float))
+    for i, (av, bv) in enumerate(points):
+        # reference library: sympy.real_roots (exact isolation)
+        exact = [float(r) for r in sympy.real_roots(sympy.Poly(av + bv * x - x**3, x))]
+        np.testing.assert_allclose(_found(result, i)[:, 0], sorted(exact), rtol=1e-12, atol=1e-14)
+
+
+# ------------------------------------------------------------ two coupled cubics (<= 9)
+
+
+def _resultant_coefficients(f1, f2, eliminate, keep):
+    """Coefficients (in the parameters a1, a2, c) of the resultant, highest power first."""
+    res = sympy.Poly(sympy.resultant(f1, f2, eliminate), keep)  # reference library: sympy
+    return sympy.lambdify([a1, a2, c], res.all_coeffs(), "numpy")
+
+
+def test_coupled_cubics_match_sympy_resultants_at_500_points():
+    f1 = a1 * x - x**3 + c * y
+    f2 = a2 * y - y**3 + c * x
+    system = polynomial_form([f1, f2], [x, y], [a1, a2, c])
+    assert system.path_count == 9
+    in_x = _resultant_coefficients(f1, f2, y, x)   # eliminates y: polynomial in x
+    in_y = _resultant_coefficients(f1, f2, x, y)   # eliminates x: polynomial in y
+    rng = np.random.default_rng(5)
+    size = 500
+    coupling = rng.uniform(0.02, 0.6, size) * rng.choice([-1.0, 1.0], size)
+    params = np.column_stack([rng.uniform(0.2, 2.0, size), rng.uniform(0.2, 2.0, size), coupling])
+    result = solve_batch(system, params)
+    assert (result.status == 0).all()
+    checked = 0
+    for i, p in enumerate(params):
+        xs, bad_x = _real_roots(np.array(in_x(*p), dtype=float))
+        ys, bad_y = _real_roots(np.array(in_y(*p), dtype=float))
+        if bad_x or bad_y:  # near-double roots: tiny discriminant, count ill-posed
+            continue
+        got = _found(result, i)
+        # f1 is linear in y (c != 0), so real x-roots and real roots correspond one to one
+        assert len(got) == len(xs) == len(ys), p
+        np.testing.assert_allclose(np.sort(got[:, 0]), xs, rtol=1e-7, atol=1e-9)
+        np.testing.assert_allclose(np.sort(got[:, 1]), ys, rtol=1e-7, atol=1e-9)
+        checked += 1
+    assert checked > 450
+    assert result.count.max() == 9  # the nine-steady-state regime is sampled
+
+
+def test_general_quadratic_pair_matches_sympy_resultant():
+    # two dense quadratics in (x, y) whose 12 coefficients are the parameters:
+    # neither equation is linear in a variable; 0, 2 or 4 real roots
+    p = sympy.symbols("p0:12", real=True)
+    monomials = [1, x, y, x**2, x * y, y**2]
+    g1 = sum(pi * m for pi, m in zip(p[:6], monomials))
+    g2 = sum(pi * m for pi, m in zip(p[6:], monomials))
+    system = polynomial_form([g1, g2], [x, y], p)
+    res = sympy.Poly(sympy.resultant(g1, g2, y), x)  # reference library: sympy.resultant
+    coefficients = sympy.lambdify([p], res.all_coeffs(), "numpy")
+    rng = np.random.default_rng(8)
+    params = rng.normal(size=(200, 12))
+    result = solve_batch(system, params)
+    checked = 0
+    for i, q in enumerate(params):
+        xs, bad = _real_roots(np.array(coefficients(q), dtype=float))
+        if bad:
+            continue
+        got = _found(result, i)
+        assert len(got) == len(xs), q
+        np.testing.assert_allclose(np.sort(got[:, 0]), xs, rtol=1e-7, atol=1e-9)
+        # back-substitution: each y is a common root of g1(x, .) and g2(x, .)
+        for xv, yv in got:
+            for g in (g1, g2):
+                value = float(g.subs({x: xv, y: yv, **dict(zip(p, q))}))
+                assert abs(value) < 1e-8 * (1 + np.abs(q).sum() * (1 + xv**2 + yv**2))
+        checked += 1
+    assert checked > 180
+    assert {0, 2, 4} <= set(np.unique(result.count))
+
+
+# ----------------------------------------------------------- Hill-type toggle switch
+
+
+@pytest.mark.parametrize("hill, size", [(2, 200), (3, 300)])
+def test_toggle_switch_matches_eliminated_polynomial(hill, size):
+    # u' = a1/(1 + v^h) - u, v' = a2/(1 + u^h) - v. Eliminating v = a2/(1 + u^h) and
+    # clearing denominators gives a1 (1+u^h)^h - u ((1+u^h)^h + a2^h) = 0 (degree h^2+1).
+    system = polynomial_form([a1 / (1 + v**hill) - u, a2 / (1 + u**hill) - v], [u, v], [a1, a2])
+    assert system is not None
+    rng = np.random.default_rng(hill)
+    params = rng.uniform(0.5, 5.0, size=(size, 2))
+    result = solve_batch(system, params)
+    assert (result.status == 0).all()
+    P = np.polynomial.Polynomial
+    checked = 0
+    for i, (av1, av2) in enumerate(params):
+        q = P([1.0] + [0.0] * (hill - 1) + [1.0])  # 1 + u^h
+        eliminated = av1 * q**hill - P([0.0, 1.0]) * (q**hill + av2**hill)
+        us, bad = _real_roots(eliminated.coef[::-1])  # reference: numpy.roots (companion matrix)
+        if bad:
+            continue
+        got = _found(result, i)
+        assert len(got) == len(us), (av1, av2)
+        np.testing.assert_allclose(got[:, 0], us, rtol=1e-8, atol=1e-10)
+        np.testing.assert_allclose(got[:, 1], av2 / (1 + us**hill), rtol=1e-8, atol=1e-10)
+        checked += 1
+    assert checked > 0.95 * size
+    assert result.count.max() >= 3  # bistable parameter sets are sampled
+
+
+def test_toggle_switch_at_extreme_parameter_scales():
+    # steady states from 1e-14 to 1e7 within one set, and one within 1e-9 of a pole of
+    # 1/(1 + v^3); reference: numpy.roots on the eliminated polynomial (as above)
+    system = polynomial_form([a1 / (1 + v**3) - u, a2 / (1 + u**3) - v], [u, v], [a1, a2])
+    params = np.array([[1e5, 2.0], [1e-4, 1e-4], [1e3, 1e3], [1e-8, 5.0], [1e7, 1e7]])
+    result = solve_batch(system, params)
+    P = np.polynomial.Polynomial
+    q = P([1.0, 0.0, 0.0, 1.0])
+    for i, (av1, av2) in enumerate(params):
+        us, _ = _real_roots((av1 * q**3 - P([0.0, 1.0]) * (q**3 + av2**3)).coef[::-1])
+        got = _found(result, i)
+        assert len(got) == len(us), (av1, av2)
+        np.testing.assert_allclose(got[:, 0], us, rtol=1e-6, atol=1e-12)
+
+
+# ----------------------------------------------------------------------------- Lorenz
+
+
+def test_lorenz_steady_states_match_closed_form():
+    # source: Lorenz (1963), J. Atmos. Sci. 20:130 -- steady states (0,0,0) and, for
+    # rho > 1, (+-sqrt(beta (rho-1)), +-sqrt(beta (rho-1)), rho - 1)
+    sigma, rho, beta = sympy.symbols("sigma rho beta", real=True)
+    system = polynomial_form([sigma * (y - x), x * (rho - z) - y, x * y - beta * z],
+                             [x, y, z], [sigma, rho, beta])
+    assert system.path_count == 4  # one total-degree path diverges
+    rng = np.random.default_rng(1963)
+    above = np.column_stack([rng.uniform(1, 20, 200), rng.uniform(1.05, 50, 200), rng.uniform(0.3, 5, 200)])
+    below = np.column_stack([rng.uniform(1, 20, 50), rng.uniform(0.05, 0.95, 50), rng.uniform(0.3, 5, 50)])
+    params = np.vstack([above, below])
+    result = solve_batch(system, params)
+    assert (result.status == 0).all()
+    for i, (s, r, bt) in enumerate(params):
+        expected = [[0.0, 0.0, 0.0]]
+        if r > 1:
+            w = np.sqrt(bt * (r - 1))
+            expected = [[-w, -w, r - 1], [0.0, 0.0, 0.0], [w, w, r - 1]]
+        np.testing.assert_allclose(_found(result, i), expected, rtol=1e-9, atol=1e-9)
+
+
+# ------------------------------------------------------------ detection and clearing
+
+
+def test_rational_terms_with_integer_powers_qualify():
+    # Michaelis-Menten uptake: cleared by hand, V x - k x (K + x) over the factor K + x
+    mm = polynomial_form([a * x / (K + x) - k * x], [x], [a, K, k])
+    assert mm is not None
+    assert sympy.expand(mm.numerators[0] - (a * x - k * x * (K + x))) == 0
+    assert mm.denominators == (K + x,)
+    assert mm.degrees == (2,) and mm.path_count == 2
+    # Hill function with integer exponent; 2.0 written as a float is still an integer power
+    hill = polynomial_form([a * x**3 / (K**3 + x**3) - k * x + b], [x], [a, K, k, b])
+    assert hill is not None and hill.degrees == (4,)
+    as_float = polynomial_form([a * x**2.0 / (1 + x**2.0) - x], [x], [a])
+    assert as_float is not None and as_float.degrees == (3,)
+    # coefficients may depend on parameters in any way
+    assert polynomial_form([sympy.exp(k) * x - sympy.sqrt(K) * x**2], [x], [k, K]) is not None
+
+
+@pytest.mark.parametrize("expr", [sympy.exp(x) - a, sympy.sqrt(x) - a, x**n - a, x**sympy.Rational(1, 2) - a,
+                                  sympy.Abs(x) - a, a / (1 + sympy.exp(-x)) - x])
+def test_non_polynomial_systems_are_refused(expr):
+    assert polynomial_form([expr], [x], [a, n]) is None
+
+
+def test_polynomial_form_rejects_malformed_input():
+    with pytest.raises(ValueError):
+        polynomial_form([x - a], [x, y], [a])
+    with pytest.raises(ValueError):
+        polynomial_form([x - a * z], [x], [a])
+    # an equation that vanishes identically has no isolated roots
+    assert polynomial_form([x - x, y - 1], [x, y], []) is None
+
+
+def test_roots_at_cleared_poles_are_discarded():
+    # y/(x - 1) = 0, x + y - 1 = 0: the cleared system y = 0, x + y = 1 has the single
+    # root (1, 0), where x - 1 = 0 -- a pole, not a steady state (hand calculation).
+    at_pole = polynomial_form([y / (x - 1), x + y - 1], [x, y], [])
+    result = solve_batch(at_pole, np.zeros((1, 0)))
+    assert result.count[0] == 0 and result.status[0] == 0
+    # with the pole moved to x = 2 the same root is genuine
+    away = polynomial_form([y / (x - 2), x + y - 1], [x, y], [])
+    result = solve_batch(away, np.zeros((1, 0)))
+    np.testing.assert_allclose(_found(result, 0), [[1.0, 0.0]], atol=1e-12)
+
+
+def test_michaelis_menten_root_at_pole_for_zero_half_saturation():
+    # a - k x/(K + x) = 0 gives x = a K/(k - a) (hand calculation); with K = 0 the
+    # cleared root x = 0 is the pole of x/(K + x), and a != k means no steady state
+    system = polynomial_form([a - k * x / (K + x)], [x], [a, k, K])
+    params = np.array([[1.0, 3.0, 2.0], [1.0, 3.0, 0.0]])
+    result = solve_batch(system, params)
+    np.testing.assert_allclose(_found(result, 0)[:, 0], [1.0 * 2.0 / (3.0 - 1.0)])
+    assert result.count[1] == 0
+
+
+# ------------------------------------------------------- singular and diverging paths
+
+
+def test_structural_double_root_is_found():
+    # x^2 (a - x) = 0: roots 0 (double) and a (hand calculation)
+    system = polynomial_form([x**2 * (a - x)], [x], [a])
+    result = solve_batch(system, np.array([[1.0], [2.5], [-0.7], [0.0]]))
+    for i, av in enumerate([1.0, 2.5, -0.7]):
+        np.testing.assert_allclose(_found(result, i)[:, 0], sorted([0.0, av]), atol=1e-7)
+    # a = 0: x^3 = 0, one triple root, reported once
+    np.testing.assert_allclose(_found(result, 3)[:, 0], [0.0], atol=1e-7)
+
+
+def test_paths_diverging_at_every_target_give_no_roots():
+    # x + y = a and x + y = b are parallel lines for a != b: no steady state, and the
+    # path from the generic start system diverges (hand calculation)
+    system = polynomial_form([x + y - a, x + y - b], [x, y], [a, b])
+    result = solve_batch(system, np.array([[1.0, 2.0], [0.0, -3.0]]))
+    assert (result.count == 0).all() and (result.status == 0).all()
+
+
+def test_generic_root_count_is_below_total_degree_for_toggle_switch():
+    # the eliminated polynomial of the Hill-3 toggle has degree 3*3 + 1 = 10 (see above),
+    # the Bezout bound of the cleared system is 4 * 4 = 16
+    system = polynomial_form([a1 / (1 + v**3) - u, a2 / (1 + u**3) - v], [u, v], [a1, a2])
+    assert system.path_count == 16
+    assert 10 <= generic_root_count(system) <= 16
+
+
+# ------------------------------------------------------------------- status reporting
+
+
+def test_unevaluable_parameter_sets_are_flagged_not_dropped():
+    # sqrt(a) is not real for a < 0; K = 0 makes b x / K undefined
+    system = polynomial_form([x**2 - sympy.sqrt(a) + b * x / K], [x], [a, b, K])
+    params = np.array([[4.0, 0.0, 1.0], [-1.0, 0.0, 1.0], [4.0, 1.0, 0.0]])
+    result = solve_batch(system, params)
+    assert result.status.tolist() == [0, 2, 2]
+    assert result.message[0] == "" and result.message[1] and result.message[2]
+    np.testing.assert_allclose(_found(result, 0)[:, 0], [-np.sqrt(2.0), np.sqrt(2.0)])
+    assert (result.count[1:] == 0).all()
+
+
+def test_failed_paths_are_reported(monkeypatch):
+    # starve the tracker so that paths cannot reach the target: status 1, not silence
+    system = polynomial_form([a1 * x - x**3 + c * y, a2 * y - y**3 + c * x], [x, y], [a1, a2, c])
+    generic_root_count(system)  # start solutions computed with normal settings
+    starved = homotopy._Settings(max_iterations=3)
+    monkeypatch.setattr(homotopy, "_NORMAL", starved)
+    monkeypatch.setattr(homotopy, "_RETRACK", (starved,))
+    result = solve_batch(system, np.array([[1.0, 1.5, 0.1]]))
+    assert result.status[0] == 1
+    assert "paths failed" in result.message[0]
+
+
+# --------------------------------------------------------------------- determinism
+
+
+def test_results_are_reproducible_and_independent_of_the_batch():
+    # design requirement (same seed => same results, whatever the chunking)
+    system = polynomial_form([a1 / (1 + v**3) - u, a2 / (1 + u**3) - v], [u, v], [a1, a2])
+    params = np.random.default_rng(4).uniform(0.5, 5.0, size=(40, 2))
+    whole = solve_batch(system, params, seed=3)
+    again = solve_batch(system, params, seed=3)
+    np.testing.assert_array_equal(whole.roots, again.roots)
+    part = solve_batch(system, params[10:17], seed=3)
+    width = part.roots.shape[1]
+    np.testing.assert_array_equal(part.roots, whole.roots[10:17, :width])
+    assert np.isnan(whole.roots[10:17, width:]).all()
+    np.testing.assert_array_equal(part.count, whole.count[10:17])
+
+
+def test_empty_batch_and_wrong_shapes():
+    system = polynomial_form([a + b * x - x**3], [x], [a, b])
+    empty = solve_batch(system, np.zeros((0, 2)))
+    assert empty.roots.shape[0] == 0 and empty.count.shape == (0,)
+    with pytest.raises(ValueError):
+        solve_batch(system, np.zeros((3, 3)))
+    assert isinstance(system, PolynomialSystem)
