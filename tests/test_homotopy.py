@@ -189,8 +189,9 @@ def test_toggle_switch_at_extreme_parameter_scales():
 
 
 def test_lorenz_steady_states_match_closed_form():
-    # source: Lorenz (1963), J. Atmos. Sci. 20:130 -- steady states (0,0,0) and, for
-    # rho > 1, (+-sqrt(beta (rho-1)), +-sqrt(beta (rho-1)), rho - 1)
+    # source: Lorenz (1963), "Deterministic nonperiodic flow", J. Atmos. Sci. 20
+    # (citation details from memory) -- steady states (0,0,0) and, for rho > 1,
+    # (+-sqrt(beta (rho-1)), +-sqrt(beta (rho-1)), rho - 1); analytic, easily re-derived
     sigma, rho, beta = sympy.symbols("sigma rho beta", real=True)
     system = polynomial_form([sigma * (y - x), x * (rho - z) - y, x * y - beta * z],
                              [x, y, z], [sigma, rho, beta])
@@ -231,6 +232,7 @@ def test_rational_terms_with_integer_powers_qualify():
 @pytest.mark.parametrize("expr", [sympy.exp(x) - a, sympy.sqrt(x) - a, x**n - a, x**sympy.Rational(1, 2) - a,
                                   sympy.Abs(x) - a, a / (1 + sympy.exp(-x)) - x])
 def test_non_polynomial_systems_are_refused(expr):
+    # by definition: none of these is a rational function of x
     assert polynomial_form([expr], [x], [a, n]) is None
 
 
@@ -298,6 +300,7 @@ def test_generic_root_count_is_below_total_degree_for_toggle_switch():
 
 
 def test_unevaluable_parameter_sets_are_flagged_not_dropped():
+    # design requirement: a set that cannot be evaluated is recorded with a reason
     # sqrt(a) is not real for a < 0; K = 0 makes b x / K undefined
     system = polynomial_form([x**2 - sympy.sqrt(a) + b * x / K], [x], [a, b, K])
     params = np.array([[4.0, 0.0, 1.0], [-1.0, 0.0, 1.0], [4.0, 1.0, 0.0]])
@@ -309,6 +312,7 @@ def test_unevaluable_parameter_sets_are_flagged_not_dropped():
 
 
 def test_failed_paths_are_reported(monkeypatch):
+    # design requirement: possibly incomplete results are flagged (status 1)
     # starve the tracker so that paths cannot reach the target: status 1, not silence
     system = polynomial_form([a1 * x - x**3 + c * y, a2 * y - y**3 + c * x], [x, y], [a1, a2, c])
     generic_root_count(system)  # start solutions computed with normal settings

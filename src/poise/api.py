@@ -190,7 +190,8 @@ def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: i
             fresh["chunks"] = existing.get("chunks", {})
         elif resume or not existing.get("complete"):
             raise InputError(
-                "this directory holds an unfinished run of a different study or settings "
+                f"this directory holds {'a' if existing.get('complete') else 'an unfinished'} "
+                "run of a different study or settings "
                 f"(differs in: {', '.join(differences)}); resuming would mix results. "
                 "Run with another --out, or delete the directory to start again",
                 file=str(directory))

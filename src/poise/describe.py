@@ -43,7 +43,7 @@ def describe_text(study: Study, description: dict) -> str:
     lines = [f"study       {study.title}", f"file        {study.path}", ""]
     lines.append("states and their equations")
     width = max(len(s) for s in study.states)
-    for state, text in description["ode"].items():
+    for state, text in study.ode_text.items():
         lines.append(f"  d{state:<{width}}/dt = {text}")
     if description["conserved"]:
         lines += ["", "conserved totals"]

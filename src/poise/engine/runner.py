@@ -3,29 +3,70 @@ checkpoint each finished chunk so that a killed run resumes where it stopped.
 
 The parent process alone writes files: workers return parquet bytes, the parent
 writes each part atomically and records it (with its hash) in manifest.json.
+
+Retries: a chunk whose function raised or whose worker process died is tried once
+more; after two failed attempts its sets are recorded as failed, with the reason.
+When a worker dies while several chunks are in flight nobody can tell which one
+killed it, so those chunks are retried one at a time: a second death is then the
+chunk's own, and the innocent ones go through.
 """
 
 from __future__ import annotations
 
 import os
+import signal
+import time
+from collections import Counter
+from concurrent.futures import FIRST_COMPLETED, wait
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Iterable
+from typing import Callable, Iterator
 
 import numpy as np
 
 from poise.engine.storage import part_is_valid, part_paths, sha256, write_atomic, write_manifest
-from poise.engine.worker import ChunkOutput, run_chunk
+from poise.engine.worker import ChunkOutput, prepared, run_chunk
+
+ATTEMPTS = 2                 # first try and one retry
+# Starting a pool of workers (each imports the numeric stack and compiles the model)
+# costs about this many seconds of wall time. With jobs = 0 (all cores, the default)
+# the parent times the first chunk itself and starts workers only if they would save
+# more than that. Measured on a 2-core machine with benchmarks/bench_scale.py (1.5-3 s);
+# common practice, no source.
+WORKER_START_SECONDS = 3.0
+# Each worker computes with one thread: the kernels work on many tiny matrices, where
+# BLAS threads only compete with the other workers for the cores.
+WORKER_ENV = {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 
 
 @dataclass(frozen=True)
 class ChunkTask:
+    """Rows ``start:stop`` of the design, checkpointed as chunk `index`."""
+
     index: int
     start: int
     stop: int
 
+    @property
+    def size(self) -> int:
+        return self.stop - self.start
+
+
+@dataclass
+class Outcome:
+    """What came back for one task: the worker's output, or why there is none.
+
+    `shared` marks a chunk lost together with others when a worker died: it may not
+    have caused the death, so it is retried alone.
+    """
+
+    task: ChunkTask
+    output: ChunkOutput
+    shared: bool = False
+
 
 def plan_chunks(n_rows: int, chunk_size: int) -> list[ChunkTask]:
+    """Consecutive chunks of `chunk_size` rows (the last one shorter)."""
     return [ChunkTask(i, start, min(start + chunk_size, n_rows))
             for i, start in enumerate(range(0, n_rows, chunk_size))]
 
@@ -41,45 +82,85 @@ def finished_chunks(directory: Path, manifest: dict) -> set[int]:
 
 def execute(directory: Path, manifest: dict, study_path: str, study_text: str,
             params: np.ndarray, method: str, jobs: int, scheduler: str | None,
-            progress: Callable[[int], None] | None = None) -> dict:
+            progress: Callable[..., None] | None = None) -> dict:
     """Run every unfinished chunk and record it in the manifest.
 
-    A chunk whose function raised is retried once, then written as failed sets with
-    the reason. Returns the updated manifest.
+    Parameters
+    ----------
+    directory : the run directory (parts go to ``directory/parts``).
+    manifest : the run's manifest; ``chunk_size`` and ``chunks`` are read and updated.
+    study_path, study_text : what workers compile (once per process).
+    params : (n_sets, m) values of the uncertain parameters in design order.
+    method : the steady-state finder.
+    jobs : local worker processes; 1 = in this process; 0 = up to one per core, started
+        only when the first chunk's time shows they pay off (`worth_processes`).
+    scheduler : address of a Dask scheduler; when given, chunks run on its workers.
+    progress : called with the number of sets just finished (and ``True`` for sets
+        found finished on resume).
+
+    Returns
+    -------
+    dict
+        The updated manifest, one record per chunk (failed chunks included).
     """
     tasks = plan_chunks(params.shape[0], manifest["chunk_size"])
     done = finished_chunks(directory, manifest)
     manifest["chunks"] = {str(i): manifest["chunks"][str(i)] for i in sorted(done)}
+    write_manifest(directory, manifest)
     if progress:
-        progress(sum(t.stop - t.start for t in tasks if t.index in done), True)
+        progress(sum(t.size for t in tasks if t.index in done), True)
     pending = [t for t in tasks if t.index not in done]
-    last_errors: dict[int, str] = {}
-    for attempt in range(2):
-        if not pending:
-            break
-        failed = []
-        for output in _dispatch(pending, study_path, study_text, params, method, jobs, scheduler):
-            task = tasks[output.index]
-            if output.error:
-                failed.append((task, output.error))
-                continue
-            _record(directory, manifest, output)
-            if progress:
-                progress(task.stop - task.start)
-        pending = [task for task, _ in failed]
-        last_errors = {task.index: error for task, error in failed}
-    for task in pending:
-        _record(directory, manifest, _failed_chunk(study_path, study_text, task, params,
-                                                   last_errors[task.index]))
+    if not pending:
+        return manifest
+
+    def arguments(task: ChunkTask) -> tuple:
+        return (study_path, study_text, task.index, np.arange(task.start, task.stop, dtype=np.int64),
+                params[task.start:task.stop], method)
+
+    attempts: Counter = Counter()
+    workers = 1 if scheduler else (jobs or os.cpu_count() or 1)
+
+    def settle(outcome: Outcome) -> bool:
+        """Record a finished (or finally failed) chunk; True if it is to be tried again."""
+        task, output = outcome.task, outcome.output
+        if output.error:
+            attempts[task.index] += 1
+            if attempts[task.index] < ATTEMPTS:
+                return True
+            output = _failed_chunk(study_path, study_text, task, output.error)
+        _record(directory, manifest, output)
         if progress:
-            progress(task.stop - task.start)
+            progress(task.size)
+        return False
+
+    if not scheduler and jobs == 0 and workers > 1 and len(pending) > 1:
+        # Automatic: time the first chunk here, then decide whether workers pay off.
+        first, pending = pending[0], pending[1:]
+        prepared(study_path, study_text)     # compiling is not part of the chunk's time
+        started = time.perf_counter()
+        pending = [o.task for o in _InProcess().run([first], arguments) if settle(o)] + pending
+        if not worth_processes(time.perf_counter() - started, len(pending), workers):
+            workers = 1
+    with _backend(workers, scheduler, len(pending)) as backend:
+        while pending:
+            retry, alone = [], []
+            for outcome in backend.run(pending, arguments):
+                if settle(outcome):
+                    (alone if outcome.shared else retry).append(outcome.task)
+            for task in alone:  # lost when a worker died: alone, a second death is its own
+                for outcome in backend.run([task], arguments, alone=True):
+                    if settle(outcome):
+                        retry.append(task)
+            pending = sorted(retry, key=lambda t: t.index)
     return manifest
 
 
 def _record(directory: Path, manifest: dict, output: ChunkOutput) -> None:
+    """Write a chunk's parts atomically, then list them in the manifest (in that order,
+    so the manifest never names a part that is not on disk)."""
     sets_file, eq_file = part_paths(output.index)
-    write_atomic(directory / sets_file, output.sets)
-    write_atomic(directory / eq_file, output.equilibria)
+    write_atomic(directory / sets_file, output.sets, sync_folder=False)
+    write_atomic(directory / eq_file, output.equilibria, sync_folder=False)
     manifest["chunks"][str(output.index)] = {
         "sets": {"file": sets_file, "sha256": sha256(output.sets)},
         "equilibria": {"file": eq_file, "sha256": sha256(output.equilibria)},
@@ -87,78 +168,190 @@ def _record(directory: Path, manifest: dict, output: ChunkOutput) -> None:
     write_manifest(directory, manifest)
 
 
-def _failed_chunk(study_path, study_text, task: ChunkTask, params, error: str) -> ChunkOutput:
+def _failed_chunk(study_path: str, study_text: str, task: ChunkTask, error: str) -> ChunkOutput:
     """Every set of a chunk that failed twice, recorded as failed with the reason."""
     import pandas as pd
 
     from poise.engine.storage import frame_bytes
-    from poise.engine.worker import equilibria_schema, prepared, sets_schema
+    from poise.engine.worker import equilibria_schema, sets_schema
 
     study, model = prepared(study_path, study_text)
     ids = np.arange(task.start, task.stop, dtype=np.int64)
+    missing = pd.array([pd.NA] * ids.size, dtype="Int64")
     sets = pd.DataFrame({"sample_id": ids, "status": "failed",
                          "reason": f"the chunk failed twice: {error}",
-                         "n_steady": pd.array([pd.NA] * ids.size, dtype="Int64"),
-                         "n_stable": pd.array([pd.NA] * ids.size, dtype="Int64")})
+                         "n_steady": missing, "n_stable": missing.copy()})
     for claim in study.claims:
         sets[claim.name] = pd.array([pd.NA] * ids.size, dtype="boolean")
     schema = equilibria_schema(study.states, model.dimension)
-    empty = pd.DataFrame({f.name: pd.Series([], dtype=f.type.to_pandas_dtype()) for f in schema})
+    empty = schema.empty_table().to_pandas()
     return ChunkOutput(index=task.index, sets=frame_bytes(sets, sets_schema(study)),
                        equilibria=frame_bytes(empty, schema))
 
 
-def _dispatch(tasks: list[ChunkTask], study_path, study_text, params, method, jobs, scheduler) -> Iterable[ChunkOutput]:
-    """Run tasks; yield outputs as they finish (in any order)."""
-    arguments = [(study_path, study_text, t.index, np.arange(t.start, t.stop, dtype=np.int64),
-                  params[t.start:t.stop], method) for t in tasks]
+# --- where chunks run -------------------------------------------------------------
+
+def worth_processes(chunk_seconds: float, n_chunks: int, workers: int) -> bool:
+    """Whether `workers` processes finish `n_chunks` chunks of `chunk_seconds` each
+    sooner than this process alone, start-up included."""
+    if n_chunks < 2 or workers < 2:
+        return False
+    alone = n_chunks * chunk_seconds
+    shared = WORKER_START_SECONDS + alone / min(workers, n_chunks)
+    return shared < alone
+
+
+def _backend(workers: int, scheduler: str | None, n_pending: int):
     if scheduler:
-        yield from _dispatch_dask(arguments, scheduler)
-        return
-    workers = jobs or os.cpu_count() or 1
-    if workers == 1 or len(tasks) == 1:
-        for args in arguments:
-            yield run_chunk(*args)
-        return
-    yield from _dispatch_processes(arguments, workers)
+        return _DaskBackend(scheduler)
+    if workers == 1 or n_pending < 2:
+        return _InProcess()
+    return _Processes(workers)
 
 
-def _dispatch_processes(arguments, workers: int) -> Iterable[ChunkOutput]:
-    from joblib import Parallel, delayed
-    from joblib.externals.loky.process_executor import TerminatedWorkerError
+class _InProcess:
+    """Chunks run one after the other in this process (one job, or a small run)."""
 
-    returned = set()
-    try:
-        parallel = Parallel(n_jobs=min(workers, len(arguments)), return_as="generator_unordered")
-        for output in parallel(delayed(run_chunk)(*args) for args in arguments):
-            returned.add(output.index)
-            yield output
-    except TerminatedWorkerError as exc:
-        # A worker died (killed, out of memory): report what did not come back as failed
-        # so the caller retries it.
-        reason = f"a worker process died ({exc.__class__.__name__})"
-        for args in arguments:
-            if args[2] not in returned:
-                yield ChunkOutput(index=args[2], error=reason)
+    def __enter__(self):
+        return self
 
+    def __exit__(self, *exc) -> None:
+        return None
 
-def _dispatch_dask(arguments, scheduler: str) -> Iterable[ChunkOutput]:
-    try:
-        from distributed import Client, as_completed
-    except ImportError:
-        from poise.errors import InputError
-        raise InputError("--scheduler needs the Dask distributed package: pip install 'poise[cluster]'") from None
-    try:
-        client = Client(scheduler, timeout=30)
-    except (OSError, TimeoutError) as exc:
-        from poise.errors import InputError
-        raise InputError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
-    try:
-        futures = [client.submit(run_chunk, *args, pure=False) for args in arguments]
-        for future in as_completed(futures):
+    def run(self, tasks, arguments, alone: bool = False) -> Iterator[Outcome]:
+        for task in tasks:
             try:
-                yield future.result()
-            except Exception as exc:  # a worker lost mid-task
-                yield ChunkOutput(index=arguments[futures.index(future)][2], error=f"worker lost: {exc}")
-    finally:
-        client.close()
+                output = run_chunk(*arguments(task))
+            except Exception as exc:  # run_chunk reports its own errors; this is a guard
+                output = ChunkOutput(index=task.index, error=f"{type(exc).__name__}: {exc}")
+            yield Outcome(task, output)
+
+
+def _ignore_interrupts() -> None:
+    # Ctrl-C reaches every process of the terminal's group; only the parent should
+    # react (it stops the workers), so that no worker prints a traceback.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+class _Processes:
+    """Local worker processes from joblib's process executor (loky).
+
+    At most two chunks per worker are in flight, so the parent holds only a few
+    results at a time and knows exactly which chunks a dying worker took with it.
+    """
+
+    def __init__(self, workers: int):
+        self.workers = workers
+        self.current = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, kind, value, trace) -> None:
+        if kind is not None and self.current is not None:
+            # Interrupted or failed: stop the work in flight now. (After a normal end
+            # the idle workers stay a minute for the next run in this process.)
+            self.current.shutdown(wait=False, kill_workers=True)
+
+    def _executor(self):
+        from joblib.externals.loky import get_reusable_executor
+        self.current = get_reusable_executor(max_workers=self.workers, timeout=60, env=WORKER_ENV,
+                                             initializer=_ignore_interrupts)
+        return self.current
+
+    def run(self, tasks, arguments, alone: bool = False) -> Iterator[Outcome]:
+        from joblib.externals.loky.process_executor import BrokenProcessPool
+
+        window = 1 if alone else 2 * self.workers
+        queue = list(reversed(tasks))
+        flight: dict = {}
+        executor = self._executor()
+        while queue or flight:
+            while queue and len(flight) < window:
+                task = queue.pop()
+                flight[executor.submit(run_chunk, *arguments(task))] = task
+            finished, _ = wait(flight, return_when=FIRST_COMPLETED)
+            outcomes, broken = [], None
+            for future in finished:
+                task = flight.pop(future)
+                try:
+                    outcomes.append(Outcome(task, future.result()))
+                except BrokenProcessPool as exc:  # a worker died: the pool is gone
+                    broken = broken or exc
+                    outcomes.append(Outcome(task, ChunkOutput(index=task.index)))
+                except Exception as exc:  # e.g. a result that could not be sent back
+                    error = f"{type(exc).__name__}: {exc}"
+                    outcomes.append(Outcome(task, ChunkOutput(index=task.index, error=error)))
+            if broken is not None:
+                outcomes = self._after_death(outcomes, flight, broken)
+                flight.clear()
+                executor = self._executor()  # a fresh pool for the rest
+            yield from outcomes
+
+    @staticmethod
+    def _after_death(outcomes: list[Outcome], flight: dict, exc: BaseException) -> list[Outcome]:
+        """Keep what finished before the death; mark the rest lost (shared if several)."""
+        kept = [o for o in outcomes if o.output.error or o.output.sets]
+        lost = [o.task for o in outcomes if not (o.output.error or o.output.sets)]
+        for future, task in flight.items():
+            if future.done() and not future.cancelled() and future.exception() is None:
+                kept.append(Outcome(task, future.result()))
+            else:
+                lost.append(task)
+        reason = f"a worker process died while computing this chunk ({type(exc).__name__})"
+        return kept + [Outcome(task, ChunkOutput(index=task.index, error=reason), shared=len(lost) > 1)
+                       for task in lost]
+
+
+class _DaskBackend:
+    """Chunks run on the workers of a Dask distributed scheduler.
+
+    Dask itself moves the tasks of a lost worker to other workers and gives up on a
+    task that kills several workers (KilledWorker): every error that comes back here
+    belongs to its own chunk. At most a few tasks per worker thread are submitted at
+    a time, so neither the client nor the scheduler holds the whole design.
+    """
+
+    def __init__(self, scheduler: str):
+        from poise.errors import InputError
+        try:
+            from distributed import Client
+        except ImportError:
+            raise InputError("--scheduler needs the Dask distributed package "
+                             "(pip install 'poise[cluster]')") from None
+        try:
+            self.client = Client(scheduler, timeout=30)
+        except (OSError, TimeoutError, ValueError, TypeError) as exc:
+            raise InputError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.client.close()
+
+    def run(self, tasks, arguments, alone: bool = False) -> Iterator[Outcome]:
+        from distributed import as_completed
+
+        threads = sum(self.client.nthreads().values()) or 1
+        window = 1 if alone else 2 * threads
+        queue = list(reversed(tasks))
+        owner: dict = {}
+        pool = as_completed()
+        while queue and len(owner) < window:
+            task = queue.pop()
+            future = self.client.submit(run_chunk, *arguments(task), pure=False)
+            owner[future.key] = task
+            pool.add(future)
+        for future in pool:
+            task = owner.pop(future.key)
+            try:
+                output = future.result()
+            except Exception as exc:  # the task was lost or could not run
+                output = ChunkOutput(index=task.index, error=f"{type(exc).__name__}: {exc}")
+            yield Outcome(task, output)
+            if queue:
+                task = queue.pop()
+                future = self.client.submit(run_chunk, *arguments(task), pure=False)
+                owner[future.key] = task
+                pool.add(future)

@@ -18,9 +18,14 @@ MANIFEST = "manifest.json"
 PARTS = "parts"
 
 
-def write_atomic(path: Path, data: bytes) -> None:
+def write_atomic(path: Path, data: bytes, sync_folder: bool = True) -> None:
     """Write `data` to `path` so that readers see the old file or the new one, never a
-    half-written one: temporary file in the same folder, flush, fsync, rename."""
+    half-written one: temporary file in the same folder, flush, fsync, rename.
+
+    `sync_folder` also makes the rename durable across a power cut (an fsync of the
+    folder); chunk parts skip it, as a part lost that way fails validation on resume
+    and is simply recomputed.
+    """
     path.parent.mkdir(parents=True, exist_ok=True)
     handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
@@ -32,6 +37,22 @@ def write_atomic(path: Path, data: bytes) -> None:
     except BaseException:
         Path(temporary).unlink(missing_ok=True)
         raise
+    if sync_folder:
+        _sync_directory(path.parent)
+
+
+def _sync_directory(folder: Path) -> None:
+    """Make the rename itself durable (POSIX); a no-op where folders cannot be opened."""
+    try:
+        descriptor = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(descriptor)
+    except OSError:
+        pass
+    finally:
+        os.close(descriptor)
 
 
 def sha256(data: bytes) -> str:

@@ -8,6 +8,7 @@ strings cross process (or machine) boundaries.
 from __future__ import annotations
 
 import hashlib
+import threading
 import traceback
 from dataclasses import dataclass
 from pathlib import Path
@@ -19,6 +20,7 @@ from poise.engine.chunk import analyse_sets
 from poise.engine.storage import frame_bytes
 
 _CACHE: dict[str, tuple] = {}
+_CACHE_LOCK = threading.Lock()   # a Dask worker may run several chunks in threads
 
 
 @dataclass
@@ -34,13 +36,14 @@ class ChunkOutput:
 def prepared(study_path: str, study_text: str):
     """The study and its compiled model, built once per process."""
     key = hashlib.sha256((study_path + "\0" + study_text).encode()).hexdigest()
-    if key not in _CACHE:
-        from poise.model import compile_model
-        from poise.study.loader import load_study
-        study = load_study(Path(study_path), text=study_text)
-        _CACHE.clear()
-        _CACHE[key] = (study, compile_model(study))
-    return _CACHE[key]
+    with _CACHE_LOCK:
+        if key not in _CACHE:
+            from poise.model import compile_model
+            from poise.study.loader import load_study
+            study = load_study(Path(study_path), text=study_text)
+            _CACHE.clear()  # one study per process: a long-lived worker does not pile them up
+            _CACHE[key] = (study, compile_model(study))
+        return _CACHE[key]
 
 
 def run_chunk(study_path: str, study_text: str, index: int, sample_ids: np.ndarray,
@@ -48,7 +51,11 @@ def run_chunk(study_path: str, study_text: str, index: int, sample_ids: np.ndarr
     """Analyse one chunk; never raises (the error text is returned instead)."""
     try:
         study, model = prepared(study_path, study_text)
-        result = analyse_sets(study, model, sample_ids, params, solver_method=method)
+        with np.errstate(all="ignore"):
+            # Overflow or 0/0 in a few sets of a batch is expected and recorded per set;
+            # the warnings would only garble the progress line. (errstate, unlike the
+            # warnings filters, is per thread, as Dask's threaded workers need.)
+            result = analyse_sets(study, model, sample_ids, params, solver_method=method)
         return ChunkOutput(
             index=index,
             sets=frame_bytes(result.sets, sets_schema(study)),

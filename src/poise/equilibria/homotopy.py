@@ -40,15 +40,19 @@ Details:
 * **Path jumping.** Two paths of one parameter set ending at the same well-conditioned
   root means one of them jumped; both are tracked again with smaller maximum steps and a
   stricter acceptance test (twice at most). Failed paths are re-tracked the same way.
-* **Singular endpoints.** No Cauchy or power-series endgame: paths whose steps shrink
-  near ``s = 0`` (multiple roots, multiple points at infinity) are stopped at
-  ``s <= 1e-11`` and refined by up to 60 Newton iterations on the target (linear
-  convergence at a multiple root); the condition number of the Jacobian flags them as
-  ill-conditioned, which loosens the tolerances for calling them real and for merging
-  duplicates. Multiple roots are therefore accurate to roughly ``eps**(1/multiplicity)``.
+* **Singular endpoints.** No Cauchy or power-series endgame: a path heading for a
+  multiple root (or a multiple point at infinity) cannot land on ``s = 0``; its steps
+  shrink geometrically until they collapse (typically near ``s ~ 1e-11``), where it is
+  stopped and refined by up to 60 Newton iterations on the target (linear convergence at
+  a multiple root). A large condition number of the scaled Jacobian marks it singular,
+  which loosens the tolerances for calling it real and for merging duplicates. Multiple
+  roots are therefore accurate to roughly ``eps**(1/multiplicity)``.
 * **Real roots.** Finite endpoints with a small imaginary part are polished by real
   Newton on the cleared system, kept when the residual is small relative to the size of
   the terms, dropped when a cleared denominator vanishes there, and de-duplicated.
+  Each target equation is scaled to unit largest coefficient first (same roots).
+* **Reproducibility.** Every path is advanced, refined and judged on its own, so a
+  parameter set's result does not depend on the other sets in the batch.
 """
 
 from __future__ import annotations
@@ -83,8 +87,10 @@ class HomotopyResult:
     count : ndarray of int, shape (B,)
         Number of real roots found for each set.
     status : ndarray of int, shape (B,)
-        0 ok; 1 some paths failed or jumped, so roots may be missing; 2 the system could
-        not be evaluated at this parameter set (no roots reported).
+        0 ok; 1 some paths failed or jumped (or the once-per-system start solve lost
+        paths), so roots may be missing; 2 the system could not be evaluated at this
+        parameter set: non-finite coefficients, an equation or a denominator vanishing
+        identically (no roots reported).
     message : ndarray of str, shape (B,)
         Reason when ``status != 0``, else ``""``.
     """
@@ -541,6 +547,8 @@ def _near_pairs(points: np.ndarray, group: np.ndarray, rel: float, window: int =
 
 @dataclass(frozen=True, eq=False)
 class _Compiled:
+    """Numeric form of a PolynomialSystem: term tables and coefficient functions."""
+
     n: int
     degrees: tuple[int, ...]
     table: _Table                 # numerators, homogeneous

@@ -1,8 +1,11 @@
 """Batched solves of small linear systems, tolerant of singular members.
 
 `numpy.linalg.solve` on a stack fails as a whole when one matrix is singular; here
-each member succeeds or fails on its own, and tiny systems use closed forms, which
-beat LAPACK calls on 1×1 to 3×3 matrices.
+each member succeeds or fails on its own. Arrays are in row layout, the batch index
+last, so that every operation below is elementwise over the batch: a member's result
+never depends on the other members. 1×1 to 3×3 systems use closed forms (Cramer's
+rule), which beat LAPACK calls on tiny matrices; larger ones use Gaussian elimination
+with partial pivoting, vectorised over the batch.
 """
 
 from __future__ import annotations
@@ -10,8 +13,60 @@ from __future__ import annotations
 import numpy as np
 
 
+def solve_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve a[:, :, k] @ x[:, k] = b[:, k] for every k.
+
+    Parameters
+    ----------
+    a : (n*n, K) array, the matrix entries row by row (a[i*n + j] is entry (i, j)).
+    b : (n, K) array
+
+    Returns
+    -------
+    x : (n, K) array; not finite where the matrix is singular or not finite.
+    """
+    n = b.shape[0]
+    with np.errstate(all="ignore"):
+        if n == 1:
+            return b / a
+        if n == 2:
+            a00, a01, a10, a11 = a
+            det = a00 * a11 - a01 * a10
+            return np.stack([(b[0] * a11 - a01 * b[1]) / det, (a00 * b[1] - b[0] * a10) / det])
+        if n == 3:
+            a00, a01, a02, a10, a11, a12, a20, a21, a22 = a
+            c00 = a11 * a22 - a12 * a21
+            c01 = a12 * a20 - a10 * a22
+            c02 = a10 * a21 - a11 * a20
+            det = a00 * c00 + a01 * c01 + a02 * c02
+            b0, b1, b2 = b
+            x0 = c00 * b0 + (a02 * a21 - a01 * a22) * b1 + (a01 * a12 - a02 * a11) * b2
+            x1 = c01 * b0 + (a00 * a22 - a02 * a20) * b1 + (a02 * a10 - a00 * a12) * b2
+            x2 = c02 * b0 + (a01 * a20 - a00 * a21) * b1 + (a00 * a11 - a01 * a10) * b2
+            return np.stack([x0, x1, x2]) / det
+        return _eliminate(a.reshape(n, n, -1), b)
+
+
+def _eliminate(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Gaussian elimination with partial pivoting on (n, n, K) matrices."""
+    n, count = b.shape
+    m = np.concatenate([a, b[:, None, :]], axis=1)          # augmented (n, n+1, K)
+    columns = np.arange(count)
+    for j in range(n):
+        pivot = j + np.argmax(np.abs(m[j:, j, :]), axis=0)    # (K,)
+        row_j, row_p = m[j].copy(), m[pivot, :, columns].T
+        m[j] = row_p
+        m[pivot, :, columns] = row_j.T
+        factor = m[j + 1:, j, :] / m[j, j, :]
+        m[j + 1:] -= factor[:, None, :] * m[j][None, :, :]
+    x = np.empty((n, count))
+    for i in range(n - 1, -1, -1):
+        x[i] = (m[i, n] - (m[i, i + 1:n] * x[i + 1:]).sum(axis=0)) / m[i, i]
+    return x
+
+
 def solve_batch(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Solve a[k] @ x[k] = b[k] for every k.
+    """Solve a[k] @ x[k] = b[k] for every k (batch-first layout).
 
     Parameters
     ----------
@@ -24,31 +79,7 @@ def solve_batch(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     ok : (K,) bool array
     """
     k, n = b.shape
-    with np.errstate(all="ignore"):
-        if n == 1:
-            x = b / a[:, :, 0]
-        elif n == 2:
-            det = a[:, 0, 0] * a[:, 1, 1] - a[:, 0, 1] * a[:, 1, 0]
-            x = np.empty_like(b)
-            x[:, 0] = (b[:, 0] * a[:, 1, 1] - a[:, 0, 1] * b[:, 1]) / det
-            x[:, 1] = (a[:, 0, 0] * b[:, 1] - b[:, 0] * a[:, 1, 0]) / det
-        elif n == 3:
-            c0, c1, c2 = a[:, :, 0], a[:, :, 1], a[:, :, 2]
-            det = np.einsum("ki,ki->k", c0, np.cross(c1, c2))
-            x = np.empty_like(b)
-            x[:, 0] = np.einsum("ki,ki->k", b, np.cross(c1, c2)) / det
-            x[:, 1] = np.einsum("ki,ki->k", c0, np.cross(b, c2)) / det
-            x[:, 2] = np.einsum("ki,ki->k", c0, np.cross(c1, b)) / det
-        else:
-            x = np.full_like(b, np.nan)
-            finite = np.isfinite(a).all(axis=(1, 2)) & np.isfinite(b).all(axis=1)
-            if finite.any():
-                scale = np.abs(a[finite]).max(axis=(1, 2))
-                # Reject near-singular members before LAPACK sees them.
-                conditioned = np.linalg.cond(a[finite]) < 1e14
-                rows = np.flatnonzero(finite)[conditioned & (scale > 0)]
-                if rows.size:
-                    x[rows] = np.linalg.solve(a[rows], b[rows][..., None])[..., 0]
+    x = solve_rows(np.ascontiguousarray(a.reshape(k, n * n).T), np.ascontiguousarray(b.T)).T.copy()
     ok = np.isfinite(x).all(axis=1)
     x[~ok] = np.nan
     return x, ok

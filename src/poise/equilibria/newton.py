@@ -1,11 +1,29 @@
-"""Damped Newton iterations on whole batches of (parameter set, start) pairs, with
-optional deflation of roots already found.
+"""Newton iterations on whole batches of (parameter set, start) pairs, with optional
+deflation of roots already found.
+
+Steps: the Newton step d solves J d = f and x − d is the next iterate. Its size is
+max_i |d_i| / (|x_i| + s_i) with s the state's scale; steps larger than MAX_STEP are
+shortened to that size, so that one wild step near a singular Jacobian cannot throw
+an iterate far away. There is no line search on ‖f‖: across the models we measured
+(ecological, gene-circuit, mass-action and polynomial ones) it lost more roots than
+it saved, because the equations of a model are often scaled very differently, and
+every start pays for it. A start converges when its step size falls below
+STEP_TOLERANCE; it gives up when the step size has not shrunk by 10 % for `patience`
+iterations, when it leaves the box of FAR_AWAY scales, or when f or J stops being
+finite.
 
 Deflation (Farrell, Birkisson & Funke, SIAM J. Sci. Comput. 37 (2015) A2026) solves
-G(x) = M(x) f(x) with M(x) = Π_r (1/‖x − r‖² + 1) for the known roots r, so Newton can
-no longer converge to them. The Newton step for G is the step for f scaled by
-1 / (1 + ∇log M · d) (Sherman–Morrison on the rank-one update of J), so one linear
-solve per iteration serves both.
+G(x) = M(x) f(x) with M(x) = Π_r (1/‖(x − r)/s‖² + 1) for the known roots r, so Newton
+can no longer converge to them. The Newton step for G is d / (1 + ∇log M · d)
+(Sherman–Morrison on the rank-one update of J), so one linear solve serves both.
+
+Layout and cost: arrays hold one row per state (or parameter) and one column per
+start, so the generated kernels and the closed-form solves run on contiguous rows.
+Starts run in tiles small enough to stay in the CPU cache; a tile iterates until
+most of its starts have finished, then parks the rest, which later run together
+with other tiles' stragglers. Every operation is elementwise over starts and each
+start counts its own iterations, so a start's iterates never depend on which other
+starts share its batch, tile or schedule.
 """
 
 from __future__ import annotations
@@ -14,115 +32,197 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from poise.equilibria.linalg import solve_batch
+from poise.equilibria.linalg import solve_rows
 from poise.model.kernels import Kernels
 
-STEP_TOLERANCE = 1e-11      # relative change that counts as converged
-MAX_STEP = 4.0              # longest step, in units of (|x| + scale)
-BACKTRACKS = 4
+STEP_TOLERANCE = 1e-11      # step size that counts as converged
+MAX_STEP = 4.0              # longer steps are shortened to this size
 FAR_AWAY = 1e8              # |x| beyond this many scales: the iterate diverges
-PATIENCE = 6                # iterations without a 10 % better merit before giving up
+PATIENCE = 6                # iterations without a 10 % smaller step before giving up
+TILE = 8192                 # starts per tile: a tile's rows stay in cache
+PARK = 4                    # a tile parks its stragglers below 1/PARK of its size
 
 
 @dataclass
 class NewtonResult:
-    x: np.ndarray           # (K, n) final iterates
-    converged: np.ndarray   # (K,) bool: the step became negligible
-    evaluable: np.ndarray   # (K,) bool: f was finite at the start
+    """Outcome of each start, in row layout.
 
+    x : (n, K) final iterates; converged : (K,) the step became negligible;
+    evaluable : (K,) f and J were finite at the start; iterations : (K,) used.
+    """
 
-@dataclass
-class _Deflation:
-    roots: np.ndarray       # (K, R, n)
-    mask: np.ndarray        # (K, R)
-
-    def log_factor(self, x, rows, scale):
-        """log M(x) and its gradient for M = Π_r (1/‖(x − r)/s‖² + 1)."""
-        diff = (x[:, None, :] - self.roots[rows]) / scale[:, None, :]      # (K, R, n)
-        dist2 = np.einsum("krn,krn->kr", diff, diff)
-        mask = self.mask[rows]
-        with np.errstate(all="ignore"):
-            term = np.where(mask, np.log1p(1.0 / dist2), 0.0)
-            # d/dx log(1/d² + 1) = -2 (x − r)/s² / (d² (1 + d²))
-            weight = np.where(mask, -2.0 / (dist2 * (1.0 + dist2)), 0.0)
-            grad = np.einsum("kr,krn->kn", weight, diff) / scale
-        return grad, term.sum(axis=1)
+    x: np.ndarray
+    converged: np.ndarray
+    evaluable: np.ndarray
+    iterations: np.ndarray
 
 
 def newton(kernels: Kernels, x0: np.ndarray, params: np.ndarray, scale: np.ndarray,
            max_iterations: int, known: np.ndarray | None = None,
-           known_mask: np.ndarray | None = None) -> NewtonResult:
-    """Run damped (optionally deflated) Newton from every row of `x0`.
+           known_mask: np.ndarray | None = None, patience: int = PATIENCE) -> NewtonResult:
+    """Run Newton (deflated when `known` is given) from every column of `x0`.
 
     Parameters
     ----------
-    x0 : (K, n) starts; params : (K, m) the parameter set of each start.
-    scale : (K, n) typical size of each state, for step control and deflation norms.
-    known, known_mask : (K, R, n) roots to deflate and (K, R) which of them are real.
+    kernels : compiled model; uses `rhs_and_jacobian_rows`.
+    x0 : (n, K) starts; params : (m, K) the parameter set of each start.
+    scale : (n, K) typical size of each state, for step sizes and deflation norms.
+    max_iterations, patience : limits per start.
+    known, known_mask : (R, n, K) roots to deflate and (R, K) which of them are real.
+
+    Returns
+    -------
+    NewtonResult
     """
-    deflation = _Deflation(known, known_mask) if known is not None else None
-    x = x0.copy()
-    count = x.shape[0]
-    converged = np.zeros(count, bool)
-    f = kernels.rhs(x, params)
-    evaluable = np.isfinite(f).all(axis=1)
-    active = np.flatnonzero(evaluable)
-    best = np.full(count, np.inf)
-    waited = np.zeros(count, int)
-    for _ in range(max_iterations):
-        if active.size == 0:
-            break
-        xa, pa, sa, fa = x[active], params[active], scale[active], f[active]
-        d, ok = solve_batch(kernels.jacobian(xa, pa), fa)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            log_merit = np.log(np.sqrt(np.einsum("kn,kn->k", fa, fa)))
-        if deflation is not None:
-            grad, log_m = deflation.log_factor(xa, active, sa)
-            with np.errstate(all="ignore"):
-                d = d / (1.0 + np.einsum("ki,ki->k", grad, d))[:, None]
-            log_merit = log_merit + log_m
-        # Give up on iterates that stopped making progress or ran off: deflated
-        # iterates have nowhere left to go once every root is known.
-        improved = log_merit < best[active] + np.log(0.9)
-        best[active] = np.where(improved, log_merit, best[active])
-        waited[active] = np.where(improved, 0, waited[active] + 1)
-        ok &= (np.isfinite(d).all(axis=1) & (waited[active] <= PATIENCE)
-               & (np.abs(xa) <= FAR_AWAY * sa).all(axis=1) & ~np.isnan(log_merit))
-        step = -d
-        # Cap the step length so one wild step cannot throw an iterate far away.
-        size = np.abs(step / (np.abs(xa) + sa)).max(axis=1, initial=0.0)
-        with np.errstate(all="ignore"):
-            step *= np.minimum(1.0, MAX_STEP / np.where(ok, size, 1.0))[:, None]
-        step[~ok] = 0.0
-        xa_new, fa_new = _backtrack(kernels, xa, pa, sa, fa, step, log_merit, deflation, active)
-        done = ok & (np.abs(xa_new - xa) <= STEP_TOLERANCE * (np.abs(xa_new) + sa)).all(axis=1)
-        x[active], f[active] = xa_new, fa_new
-        converged[active[done]] = True
-        active = active[ok & ~done]
-    return NewtonResult(x=x, converged=converged, evaluable=evaluable)
+    n, count = x0.shape
+    result = NewtonResult(x=x0.copy(), converged=np.zeros(count, bool),
+                          evaluable=np.zeros(count, bool), iterations=np.zeros(count, np.int64))
+    if n == 0 or count == 0:
+        result.converged[:] = result.evaluable[:] = True
+        return result
+    with np.errstate(all="ignore"):
+        parked: list[_Tile] = []
+        for low in range(0, count, TILE):
+            part = slice(low, min(count, low + TILE))
+            tile = _Tile.start(kernels, x0[:, part], params[:, part], scale[:, part], low,
+                               None if known is None else known[..., part] / scale[:, part],
+                               None if known is None else known_mask[:, part])
+            result.evaluable[tile.where] = True
+            parked += _iterate(kernels, tile, max_iterations, patience, result, TILE // PARK)
+            if sum(t.where.size for t in parked) >= TILE:
+                parked = _iterate(kernels, _Tile.merge(parked), max_iterations, patience, result, TILE // PARK)
+        if parked:
+            _iterate(kernels, _Tile.merge(parked), max_iterations, patience, result, 0)
+    return result
 
 
-def _backtrack(kernels, xa, pa, sa, fa, step, log_merit, deflation, active):
-    """Halve steps that do not reduce the merit ‖f‖ (or ‖M f‖), a few times at most;
-    the last trial is taken anyway so that iterates keep moving. Returns the new
-    points and f there (reused by the next iteration)."""
-    alpha = np.ones(xa.shape[0])
-    x_new, f_new = xa.copy(), fa.copy()
-    pending = np.flatnonzero(np.any(step != 0.0, axis=1))
-    for attempt in range(BACKTRACKS):
-        trial = xa[pending] + alpha[pending, None] * step[pending]
-        f_trial = kernels.rhs(trial, pa[pending])
-        x_new[pending], f_new[pending] = trial, f_trial
-        if attempt == BACKTRACKS - 1:
-            break
-        with np.errstate(divide="ignore", invalid="ignore"):
-            value = np.log(np.sqrt(np.einsum("kn,kn->k", f_trial, f_trial)))
-        if deflation is not None:
-            value = value + deflation.log_factor(trial, active[pending], sa[pending])[1]
-        better = np.isfinite(value) & (value <= log_merit[pending] + np.log1p(-1e-4 * alpha[pending]))
-        better |= np.isneginf(value)   # landed exactly on a root
-        pending = pending[~better]
-        if pending.size == 0:
-            break
-        alpha[pending] *= 0.5
-    return x_new, f_new
+def _iterate(kernels, t, max_iterations, patience, result, park_below):
+    """Step a tile until fewer than `park_below` starts remain live; record finished
+    starts in `result`. Returns the remaining starts as a list of at most one tile.
+
+    Finished starts leave the tile only once a quarter of it has finished (a copy
+    costs about as much as a step); until then they iterate on, unrecorded."""
+    while t.where.size:
+        live = np.count_nonzero(t.open)
+        if 4 * live <= 3 * t.where.size:
+            t.keep(np.flatnonzero(t.open))
+            continue
+        if live < park_below:
+            return [t]
+        done, ok = _step(kernels, t, patience)
+        finished = t.open & (done | ~ok | (t.age >= max_iterations))
+        if finished.any():
+            index = np.flatnonzero(finished)
+            columns = t.where[index]
+            result.x[:, columns] = t.x[:, index]
+            result.converged[columns] = done[index]
+            result.iterations[columns] = t.age[index]
+            t.open[index] = False
+    return []
+
+
+class _Tile:
+    """Live starts: iterate x, its Newton step d, the step's size, whether x is within
+    bounds, progress counters, and (for deflation) the known roots in units of the
+    scale. `where` maps columns back to the caller's starts; `open` marks the starts
+    not yet finished."""
+
+    ARRAYS = ("x", "p", "s", "d", "size", "near", "best", "waited", "age", "where", "open",
+              "rho", "used")
+
+    @classmethod
+    def start(cls, kernels, x, p, s, offset, rho=None, used=None):
+        fj = kernels.rhs_and_jacobian_rows(x, p)
+        keep = np.flatnonzero(np.isfinite(fj).all(axis=0))
+        tile = cls()
+        tile.x, tile.p, tile.s = x.take(keep, axis=1), p.take(keep, axis=1), s.take(keep, axis=1)
+        tile.rho = tile.used = None
+        if rho is not None:
+            tile.rho, tile.used = rho.take(keep, axis=-1), used.take(keep, axis=-1)
+        tile.d, tile.size, tile.near = _newton_step(fj.take(keep, axis=1), tile.x, tile.s, tile.deflation)
+        tile.best = np.full(keep.size, np.inf)
+        tile.waited = np.zeros(keep.size, np.int64)
+        tile.age = np.zeros(keep.size, np.int64)
+        tile.where = offset + keep
+        tile.open = np.ones(keep.size, bool)
+        return tile
+
+    @property
+    def deflation(self):
+        return None if self.rho is None else (self.rho, self.used)
+
+    def keep(self, index):
+        for name in self.ARRAYS:
+            value = getattr(self, name)
+            if value is not None:
+                setattr(self, name, value.take(index, axis=-1))
+
+    @classmethod
+    def merge(cls, tiles):
+        if len(tiles) == 1:
+            return tiles[0]
+        whole = cls()
+        for name in cls.ARRAYS:
+            values = [getattr(t, name) for t in tiles]
+            setattr(whole, name, None if values[0] is None else np.concatenate(values, axis=-1))
+        return whole
+
+
+def _step(kernels, t, patience):
+    """One Newton iteration on a tile, in place. Returns (done, ok): the step taken was
+    negligible; the start may go on."""
+    t.age += 1
+    size = t.size
+    ok = (size < np.inf) & (t.waited <= patience) & t.near
+    done = ok & (size <= STEP_TOLERANCE)
+    t.x = t.x - t.d * np.minimum(1.0, MAX_STEP / size)
+    fj = kernels.rhs_and_jacobian_rows(t.x, t.p)
+    t.d, t.size, t.near = _newton_step(fj, t.x, t.s, t.deflation)
+    improved = t.size < 0.9 * t.best
+    t.best = np.where(improved, t.size, t.best)
+    t.waited += 1
+    t.waited *= ~improved
+    return done, ok
+
+
+def _newton_step(fj, x, s, deflation):
+    """The (deflated) Newton step d at x from f and J (rows of `fj`); its size
+    max_i |d_i| / (|x_i| + s_i); and whether x lies within FAR_AWAY scales."""
+    n = x.shape[0]
+    d = solve_rows(fj[n:], fj[:n])                             # J d = f
+    if deflation is not None:
+        d /= 1.0 + _deflation_slope(x, s, d, deflation)
+    magnitude = np.abs(x)
+    near = magnitude <= FAR_AWAY * s
+    magnitude += s
+    relative = np.abs(d)
+    relative /= magnitude
+    size, inside = relative[0], near[0]
+    for i in range(1, n):
+        size = np.maximum(size, relative[i])
+        inside = inside & near[i]
+    return d, size, inside
+
+
+def _deflation_slope(x, s, d, deflation):
+    """∇log M · d at x for M = Π_r (1/‖z − ρ_r‖² + 1), with z = x/s and ρ_r the known
+    roots in the same units; unused slots add exactly zero."""
+    rho, used = deflation
+    z = x / s
+    e = d / s
+    total = np.zeros(x.shape[1])
+    for root, real in zip(rho, used):
+        diff = z - root
+        dist2 = _dot(diff, diff)
+        # ∇ log(1/q + 1) = −2 (z − ρ) / (q (1 + q)) with q = |z − ρ|²
+        slope = _dot(diff, e)
+        slope /= dist2 * (1.0 + dist2)
+        total += np.where(real, slope, 0.0)
+    return -2.0 * total
+
+
+def _dot(a, b):
+    total = a[0] * b[0]
+    for i in range(1, a.shape[0]):
+        total += a[i] * b[i]
+    return total

@@ -14,6 +14,8 @@ from typing import Callable
 
 import numpy as np
 import sympy
+from sympy.printing.numpy import NumPyPrinter
+from sympy.printing.precedence import PRECEDENCE
 
 from poise.model.system import ReducedSystem
 
@@ -38,6 +40,10 @@ class Kernels:
     term_size: Callable[[np.ndarray, np.ndarray], np.ndarray]
     full_states: Callable[[np.ndarray, np.ndarray], np.ndarray]
     scales: Callable[[np.ndarray], np.ndarray]
+    # Row layout for solvers: (n, K) state rows and (m, K) parameter rows in, an
+    # (n + n*n, K) array out (f, then J row by row). Contiguous rows keep the many
+    # elementwise operations of a Newton step cache-friendly.
+    rhs_and_jacobian_rows: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
 
 
 def compile_kernels(system: ReducedSystem) -> Kernels:
@@ -60,6 +66,7 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     scale_fn = _vector_kernel([], p, scale_exprs)
 
     both_fn = _vector_kernel(x, p, rhs + jac)  # one pass shares common subexpressions
+    rows_fn = _row_kernel(x, p, rhs + jac)
 
     def jacobian(X: np.ndarray, P: np.ndarray) -> np.ndarray:
         return jac_fn(X, P).reshape(X.shape[0], n, n)
@@ -71,7 +78,8 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     free_columns = tuple(system.states.index(s) for s in system.free)
     return Kernels(n=n, m=m, free_columns=free_columns, rhs=rhs_fn, jacobian=jacobian,
                    rhs_and_jacobian=rhs_and_jacobian, term_size=term_fn,
-                   full_states=full_fn, scales=lambda P: scale_fn(np.zeros((P.shape[0], 0)), P))
+                   full_states=full_fn, scales=lambda P: scale_fn(np.zeros((P.shape[0], 0)), P),
+                   rhs_and_jacobian_rows=rows_fn)
 
 
 def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
@@ -92,6 +100,40 @@ def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray
         return out
 
     return kernel
+
+
+def _row_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
+    """A function (XR (n, K), PR (m, K)) -> (len(exprs), K) evaluating `exprs`, with small
+    integer powers written as products (numpy's general power is several times slower
+    than a multiplication)."""
+    exprs = [_numeric_friendly(e) for e in exprs]
+    count = len(exprs)
+    if count == 0:
+        return lambda XR, PR: np.zeros((0, XR.shape[1]))
+    function = sympy.lambdify([*x, *p], exprs, modules=[_NUMERIC, "numpy"], cse=True,
+                              printer=_ProductPowerPrinter)
+
+    def kernel(XR: np.ndarray, PR: np.ndarray) -> np.ndarray:
+        out = np.empty((count, XR.shape[1]))
+        with np.errstate(all="ignore"):
+            values = function(*XR, *PR)
+            for j, value in enumerate(values):
+                out[j] = value
+        return out
+
+    return kernel
+
+
+class _ProductPowerPrinter(NumPyPrinter):
+    """Prints x**k for integer 2 <= |k| <= 4 as repeated products (1/(...) when k < 0)."""
+
+    def _print_Pow(self, expr, rational=False):
+        base, exponent = expr.args
+        if exponent.is_Integer and 2 <= abs(int(exponent)) <= 4 or exponent == -1:
+            factor = self.parenthesize(base, PRECEDENCE["Mul"], strict=True)
+            product = "*".join([factor] * abs(int(exponent)))
+            return f"(1.0/({product}))" if exponent < 0 else f"({product})"
+        return super()._print_Pow(expr, rational=rational)
 
 
 def _numeric_friendly(expr: sympy.Expr) -> sympy.Expr:

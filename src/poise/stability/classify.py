@@ -256,7 +256,8 @@ def _spectrum(stack: np.ndarray) -> _Spectrum:
         scale = np.ones(n_mat)
     else:
         # max |entry| of J / scale lies in [0.5, 1): no overflow in squares and cubes
-        scale = np.ldexp(1.0, np.frexp(np.abs(comp).max(axis=0))[1])
+        # (the exponent is capped so that 2**e itself stays finite near the float maximum)
+        scale = np.ldexp(1.0, np.minimum(np.frexp(np.abs(comp).max(axis=0))[1], 1023))
         comp = comp / scale                 # never in place: comp may view the input
     norm = np.sqrt(np.einsum("kb,kb->b", comp, comp))
     parts = comp.reshape(dim, dim, n_mat)
