@@ -95,6 +95,13 @@ def study_table(run: RunData) -> Table:
     rows.append(["Sensitivity analysis", words])
     if m.get("solver"):
         rows.append(["Steady-state solver", m.get("solver")])
+    check = (s.get("solver") or {}).get("completeness")
+    if check and check.get("checked"):
+        lo, hi = check["ci95"]
+        rows.append(["Missed steady states (check)",
+                     f"{check['missed']} of {check['checked']} re-solved sets had a steady state the run missed "
+                     f"({100 * check['fraction']:.1f} %, 95 % interval {100 * lo:.1f}-{100 * hi:.1f} %); "
+                     f"reference: {check['reference']}"])
     version = (s.get("tool") or m.get("tool") or {}).get("version", "unknown")
     rows.append(["poise version", version])
     if m.get("study_sha256"):
