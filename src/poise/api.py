@@ -134,6 +134,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         samples[name] = params[:, j]
     outcomes, tallies = assemble(directory, manifest, samples)
     summary = _summary(study, outcomes, tallies, design, sobol)
+    summary["solver"] = _solver_summary(study, model, method, outcomes, params)
     write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
     manifest.update(complete=True, seconds=round(time.time() - started, 3))
     write_manifest(directory, manifest)
@@ -160,6 +161,20 @@ def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool)
                                            study.sensitivity.second_order, study.sensitivity.resamples,
                                            study.sampling.seed, study.sensitivity.method),
     }
+
+
+def _solver_summary(study: Study, model, method: str, outcomes: pd.DataFrame, params: np.ndarray) -> dict:
+    """Which finder ran and, for multistart Newton, how often it missed a steady state
+    on a re-solved random subsample (homotopy is complete with probability one)."""
+    from poise.analysis.completeness import completeness_check
+    from poise.equilibria.choice import polynomial_system
+
+    entry = {"method": method}
+    if method == "newton":
+        reference = "homotopy" if polynomial_system(model) is not None else "newton"
+        entry["completeness"] = completeness_check(study, model, outcomes, params, reference,
+                                                   study.sampling.seed)
+    return entry
 
 
 def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: int, resume: bool) -> dict:

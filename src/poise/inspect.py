@@ -7,6 +7,7 @@ from typing import Mapping
 import numpy as np
 
 from poise.engine.chunk import analyse_sets
+from poise.equilibria.choice import choose_method
 from poise.model import compile_model
 from poise.study.spec import Study
 
@@ -24,7 +25,8 @@ def inspect_point(study: Study, overrides: Mapping[str, float] | None = None) ->
     values = study.nominal_values()
     values.update(overrides or {})
     model = compile_model(study, values, varying=())
-    result = analyse_sets(study, model, np.array([0]), np.zeros((1, 0)))
+    method = choose_method(study, model)
+    result = analyse_sets(study, model, np.array([0]), np.zeros((1, 0)), solver_method=method)
     table = result.equilibria
     two_d = model.dimension == 2
     equilibria = []
@@ -44,6 +46,7 @@ def inspect_point(study: Study, overrides: Mapping[str, float] | None = None) ->
         equilibria.append(entry)
     status = result.sets["status"].iloc[0]
     return {"parameters": {k: float(v) for k, v in values.items()},
+            "solver": method,
             "free_states": list(model.system.free),
             "status": "ok" if status == "ok" else result.sets["reason"].iloc[0],
             "equilibria": equilibria}

@@ -57,7 +57,7 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
     RuntimeError
         If the parts do not cover the design exactly (a bug, never user error).
     """
-    design = {name: samples[name].to_numpy() for name in samples.columns}
+    design = pa.Table.from_pandas(samples, preserve_index=False)   # sliced per chunk, no copies
     presence: Counter = Counter()
     classes: dict[str, Counter] = defaultdict(Counter)
     kept: list[pa.Table] = []
@@ -71,9 +71,9 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
             stop = start + sets.num_rows
             if stop > len(samples) or not np.array_equal(sets["sample_id"].to_numpy(), np.arange(start, stop)):
                 raise RuntimeError(f"chunk {key} does not hold sets {start}.. in order; the parts are inconsistent")
-            rows = {name: pa.array(values[start:stop]) for name, values in design.items()}
+            rows = design.slice(start, stop - start)
 
-            samples_out.write(pa.table({**rows, "status": sets["status"], "reason": sets["reason"]}))
+            samples_out.write(rows.append_column("status", sets["status"]).append_column("reason", sets["reason"]))
             outcomes = pa.table({"sample_id": rows["sample_id"], "block": rows["block"],
                                  "independent": rows["independent"],
                                  **{name: sets[name] for name in sets.column_names
@@ -89,6 +89,8 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
         if start != len(samples):
             raise RuntimeError(f"the parts hold {start} sets, the design {len(samples)}")
     outcomes = _to_pandas(kept)
+    del kept
+    pa.default_memory_pool().release_unused()   # hand Arrow's cached buffers back before the summary
     return outcomes, Tallies(presence=dict(presence), classes={k: dict(v) for k, v in classes.items()})
 
 

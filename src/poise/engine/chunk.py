@@ -43,10 +43,16 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
     params : (B, m) values of `model.varying`.
     """
     settings = study.solver
-    found = find_steady_states(model.kernels, params, model.magnitude(params),
-                               model.domain_low, model.domain_high, starts=settings.starts,
-                               deflation_rounds=settings.deflation_rounds,
-                               max_iterations=settings.max_iterations)
+    newton_settings = dict(starts=settings.starts, deflation_rounds=settings.deflation_rounds,
+                           max_iterations=settings.max_iterations)
+    if solver_method == "homotopy":
+        from poise.equilibria.choice import polynomial_system
+        from poise.equilibria.continuation import find_by_homotopy
+        found = find_by_homotopy(model.kernels, polynomial_system(model), params, model.magnitude(params),
+                                 model.domain_low, model.domain_high, **newton_settings)
+    else:
+        found = find_steady_states(model.kernels, params, model.magnitude(params),
+                                   model.domain_low, model.domain_high, **newton_settings)
     jacobians = model.kernels.jacobian(found.free, params[found.owner])
     classes = classify(jacobians)
     ok, reason = _mark_bad_jacobians(found, jacobians)

@@ -17,6 +17,7 @@ class Progress:
         self.started = time.monotonic()
         self.skipped = 0
         self._last = 0.0
+        self._width = 0
 
     def __call__(self, finished: int, resumed: bool = False) -> None:
         if resumed:
@@ -36,7 +37,10 @@ class Progress:
         filled = int(width * self.done / max(self.total, 1))
         bar = "#" * filled + "-" * (width - filled)
         eta = f"{left:5.0f}s left" if left != float("inf") else "  ...     "
-        self.stream.write(f"\r[{bar}] {self.done}/{self.total} {self.label}  {rate:8.0f} {self.label}/s  {eta}")
+        resumed = f"  ({self.skipped} from checkpoints)" if self.skipped else ""
+        line = f"[{bar}] {self.done}/{self.total} {self.label}  {rate:8.0f} {self.label}/s  {eta}{resumed}"
+        self.stream.write("\r" + line.ljust(self._width))   # blank out a longer previous line
+        self._width = len(line)
         if self.done >= self.total:
             self.stream.write("\n")
         self.stream.flush()

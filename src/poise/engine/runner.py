@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import os
 import signal
+import threading
 import time
 from collections import Counter
 from concurrent.futures import FIRST_COMPLETED, wait
@@ -104,7 +105,7 @@ def execute(directory: Path, manifest: dict, study_path: str, study_text: str,
         The updated manifest, one record per chunk (failed chunks included).
     """
     tasks = plan_chunks(params.shape[0], manifest["chunk_size"])
-    done = finished_chunks(directory, manifest)
+    done = finished_chunks(directory, manifest) & {t.index for t in tasks}
     manifest["chunks"] = {str(i): manifest["chunks"][str(i)] for i in sorted(done)}
     write_manifest(directory, manifest)
     if progress:
@@ -227,10 +228,21 @@ class _InProcess:
             yield Outcome(task, output)
 
 
-def _ignore_interrupts() -> None:
+def _prepare_worker(parent: int) -> None:
+    """Runs once in each new worker process."""
     # Ctrl-C reaches every process of the terminal's group; only the parent should
     # react (it stops the workers), so that no worker prints a traceback.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # A parent killed outright (SIGKILL, out of memory) cannot stop its workers; they
+    # would idle on as orphans, so each one leaves when it notices.
+    threading.Thread(target=_exit_with_parent, args=(parent,), daemon=True).start()
+
+
+def _exit_with_parent(parent: int) -> None:
+    while True:
+        time.sleep(1.0)
+        if os.getppid() != parent:
+            os._exit(1)
 
 
 class _Processes:
@@ -256,7 +268,7 @@ class _Processes:
     def _executor(self):
         from joblib.externals.loky import get_reusable_executor
         self.current = get_reusable_executor(max_workers=self.workers, timeout=60, env=WORKER_ENV,
-                                             initializer=_ignore_interrupts)
+                                             initializer=_prepare_worker, initargs=(os.getpid(),))
         return self.current
 
     def run(self, tasks, arguments, alone: bool = False) -> Iterator[Outcome]:
@@ -271,36 +283,29 @@ class _Processes:
                 task = queue.pop()
                 flight[executor.submit(run_chunk, *arguments(task))] = task
             finished, _ = wait(flight, return_when=FIRST_COMPLETED)
-            outcomes, broken = [], None
+            outcomes, lost, death = [], [], None
             for future in finished:
                 task = flight.pop(future)
                 try:
                     outcomes.append(Outcome(task, future.result()))
                 except BrokenProcessPool as exc:  # a worker died: the pool is gone
-                    broken = broken or exc
-                    outcomes.append(Outcome(task, ChunkOutput(index=task.index)))
+                    lost.append(task)
+                    death = exc
                 except Exception as exc:  # e.g. a result that could not be sent back
                     error = f"{type(exc).__name__}: {exc}"
                     outcomes.append(Outcome(task, ChunkOutput(index=task.index, error=error)))
-            if broken is not None:
-                outcomes = self._after_death(outcomes, flight, broken)
+            if death is not None:
+                for future, task in flight.items():  # keep what finished before the death
+                    if future.done() and not future.cancelled() and future.exception() is None:
+                        outcomes.append(Outcome(task, future.result()))
+                    else:
+                        lost.append(task)
                 flight.clear()
+                reason = f"a worker process died while computing this chunk ({type(death).__name__})"
+                outcomes += [Outcome(task, ChunkOutput(index=task.index, error=reason), shared=len(lost) > 1)
+                             for task in lost]
                 executor = self._executor()  # a fresh pool for the rest
             yield from outcomes
-
-    @staticmethod
-    def _after_death(outcomes: list[Outcome], flight: dict, exc: BaseException) -> list[Outcome]:
-        """Keep what finished before the death; mark the rest lost (shared if several)."""
-        kept = [o for o in outcomes if o.output.error or o.output.sets]
-        lost = [o.task for o in outcomes if not (o.output.error or o.output.sets)]
-        for future, task in flight.items():
-            if future.done() and not future.cancelled() and future.exception() is None:
-                kept.append(Outcome(task, future.result()))
-            else:
-                lost.append(task)
-        reason = f"a worker process died while computing this chunk ({type(exc).__name__})"
-        return kept + [Outcome(task, ChunkOutput(index=task.index, error=reason), shared=len(lost) > 1)
-                       for task in lost]
 
 
 class _DaskBackend:

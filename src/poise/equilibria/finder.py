@@ -1,20 +1,24 @@
 """Every steady state for a batch of parameter sets, by multistart Newton plus deflation.
 
-1. Multistart: Newton from a grid of starts (few states) or a scrambled Sobol point
-   set (many states) over a box scaled per set from the model: a conserved total or
-   finite domain limit where one bounds a state, else the parameters' magnitude.
+1. Multistart: Newton from a grid of starts (up to 3 free states) or a scrambled Sobol
+   point set (more states) over a box scaled per set from the model: a conserved total
+   or finite domain limit where one bounds a state, else the parameters' magnitude.
    Grid levels are spaced logarithmically and include exact zeros, where ecological
    and chemical models keep many of their steady states (an iterate started on an
-   invariant axis stays on it).
-2. Deflation rounds: for every set that found something, Newton again with the known
-   roots deflated, from a coarse grid and from the midpoint of every pair of known
-   roots (a saddle often lies between two stable states). A set goes on to the next
-   round only if its last round found a new root.
-3. Candidate roots are de-duplicated, polished, verified (residual relative to the
-   size of f's terms, or a negligible Newton correction), and filtered to the domain.
+   invariant face stays on it).
+2. Deflation rounds, for every set that found a root in the domain: Newton again with
+   those roots deflated, from a coarse grid and from each such root moved a little
+   both ways along its Jacobian's slowest direction (for 3 states, along the
+   directions inverse iteration reaches from each axis). Near a fold the missing
+   partner of a root lies along that direction, and deflation pushes the iterate out
+   along it. A set goes on to the next round only if its last round found a new root.
+3. Roots are de-duplicated as they arrive (in the order of the starts), then polished,
+   verified (residual small relative to the size of f's terms, or a negligible Newton
+   correction), and filtered to the domain.
 
-Each decision is made per set from that set's own results, so a set's steady states
-never depend on which other sets share its batch.
+Every decision is made per set from that set's own results, so a set's steady states
+never depend on which other sets share its batch (no "stop when no set found
+anything"), and there is no randomness (the Sobol points have a fixed seed).
 """
 
 from __future__ import annotations
@@ -24,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import qmc
 
-from poise.equilibria.linalg import solve_batch
+from poise.equilibria.linalg import solve_rows
 from poise.equilibria.newton import newton
 from poise.model.kernels import Kernels
 
@@ -32,14 +36,26 @@ RESIDUAL_TOLERANCE = 1e-8    # |f_i| relative to the sum of |terms| of f_i
 CORRECTION_TOLERANCE = 1e-9  # or: the next Newton step, relative to |x| + scale
 ZERO_TOLERANCE = 1e-9        # |x_i| relative to the state's scale counts as zero
 SAME_ROOT = 1e-6             # relative distance under which two roots are one
-DEFLATION_PATIENCE = 3       # deflated runs give up sooner: most have nowhere to go
+DEFLATION_PATIENCE = 6       # deflated runs: iterations without a 10 % smaller step
+OFFSET = (0.03, 0.005)       # deflation starts: roots moved by these step sizes
+WIDEN = 2.0                  # a root coordinate this many scales out widens the grid
+MIN_OFFSET = 1e-4
+SMALL_FACTORS = (1.0, 3.0)
+SMALL_PLAIN = True
+NEAR_FOLD = 0.2             # |J v| / |J| below which a root also gets the small move
+# Steps of inverse iteration for the slow direction (converged), and for the per-axis
+# directions (few, so that they stay apart).
+INVERSE_ITERATIONS = 6
+INVERSE_ITERATIONS_PER_AXIS = 2
+SOBOL_SEED = 12345
 
 # Start levels (fractions of the scale) by number of free states: one-sided for states
 # that must be >= 0, two-sided for states that may be negative; coarser ones for the
-# deflation rounds.
+# deflation rounds. Chosen by measurement (benchmarks/bench_throughput.py and models
+# with closed-form steady states): fewer levels lose roots, more cost time for nothing.
 LEVELS = {
     1: (0.0, 1e-4, 1e-3, 1e-2, 0.03, 0.1, 0.3, 0.6, 1.0, 2.0, 4.0, 10.0),
-    2: (0.0, 0.05, 0.5, 2.0),
+    2: (0.0, 0.3, 3.0),
     3: (0.0, 0.1, 1.0),
 }
 TWO_SIDED_LEVELS = {
@@ -57,8 +73,9 @@ TWO_SIDED_COARSE_LEVELS = {
     2: (-0.5, 0.7),
     3: (-0.7, 0.8),
 }
-SOBOL_SEED = 12345
-OFFSET = 0.05               # deflation starts: known roots moved by this much
+# Numbers of free states whose deflation starts move each root along one slow
+# direction per axis (their roots often sit on coordinate faces) instead of one.
+EVERY_AXIS = {3}
 
 
 @dataclass
@@ -136,20 +153,21 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
     grid = start_points(n, free_low < 0, starts)
     everyone = np.arange(batch)
     x, converged, evaluable = solve.run(everyone, np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :])
-    roots = _Roots(batch, n, SAME_ROOT * 1e-3 * scale)
+    roots = _Roots(scale, free_low, free_high)
     roots.add(everyone, x, converged)
 
     coarse = start_points(n, free_low < 0, starts, coarse=True)
-    searching = roots.count > 0
+    searching = roots.inside.any(axis=1)
     for _ in range(deflation_rounds if n else 0):
         sets = np.flatnonzero(searching)
         if sets.size == 0:
             break
-        before = roots.count.copy()
-        x0, valid = _deflation_starts(coarse, roots, sets, scale, free_low, free_high)
-        x, converged, _ = solve.run(sets, x0, valid, roots)
+        before = roots.count[sets]
+        x0, valid, plain = _deflation_starts(kernels, params, coarse, roots, sets, scale, free_low, free_high)
+        x, converged, _ = solve.run(sets, x0, valid, roots, plain)
         roots.add(sets, x, converged)
-        searching = roots.count > before
+        searching = np.zeros(batch, bool)
+        searching[sets] = roots.count[sets] > before
 
     root_owner, root_x = _verified(kernels, roots, params, scale)
     full = kernels.full_states(root_x, params[root_owner])
@@ -170,38 +188,57 @@ class _Roots:
     """Distinct roots found so far for each set, in slots: x (B, W, n), used (B, W).
 
     Candidates are merged in a fixed order (by start), so which of two equal roots is
-    kept depends on the set's own starts only."""
+    kept depends on the set's own starts only. Unused slots are padding."""
 
-    def __init__(self, batch, n, floor):
+    def __init__(self, scale, low, high):
+        batch, n = scale.shape
+        self.scale, self.low, self.high = scale, low, high
         self.x = np.zeros((batch, 0, n))
         self.used = np.zeros((batch, 0), bool)
         self.count = np.zeros(batch, np.int64)
-        self.floor = floor                      # (B, n) absolute part of the tolerance
 
     def add(self, sets, x, valid):
         """Merge candidates x (S, C, n) of `sets` (S,), where `valid` (S, C)."""
-        width = self.x.shape[1]
-        needed = self.count[sets].max(initial=0) + x.shape[1]
-        if needed > width:
-            grow = needed - width
+        if valid.sum(axis=1).max(initial=0) < 0.75 * valid.shape[1]:
+            x, valid = _front(x, valid)                 # same result, fewer columns to visit
+        grow = self.count[sets].max(initial=0) + x.shape[1] - self.x.shape[1]
+        if grow > 0:
             self.x = np.concatenate([self.x, np.zeros((self.x.shape[0], grow, self.x.shape[2]))], axis=1)
             self.used = np.concatenate([self.used, np.zeros((self.used.shape[0], grow), bool)], axis=1)
-        known, used, count = self.x[sets], self.used[sets], self.count[sets]
-        floor = self.floor[sets]
-        rows = np.arange(sets.size)
-        for c in range(x.shape[1]):
-            candidate = x[:, c]
+        count = self.count[sets]
+        n = x.shape[2]
+        # Slot-major copies (W, S): the comparisons below then run along whole rows of sets.
+        known = [np.ascontiguousarray(self.x[sets, :, j].T) for j in range(n)]
+        used = np.ascontiguousarray(self.used[sets].T)
+        candidates = [np.ascontiguousarray(x[:, :, j].T) for j in range(n)]  # (C, S) each
+        valid = np.ascontiguousarray(valid.T)
+        floor = SAME_ROOT * 1e-3 * self.scale[sets].T
+        columns = np.arange(sets.size)
+        for c in range(valid.shape[0]):
             top = count.max(initial=0)
-            seen = _same(known[:, :top], used[:, :top], candidate, floor).any(axis=1)
-            fresh = valid[:, c] & ~seen
+            seen = used[:top].copy()
+            for j in range(n):
+                a, b = known[j][:top], candidates[j][c]
+                seen &= np.abs(a - b) <= SAME_ROOT * (np.abs(a) + np.abs(b)) + floor[j]
+            fresh = valid[c] & ~seen.any(axis=0)
             if fresh.any():
-                where = rows[fresh]
-                known[where, count[where]] = candidate[where]
-                used[where, count[where]] = True
+                where = columns[fresh]
+                slot = count[where]
+                for j in range(n):
+                    known[j][slot, where] = candidates[j][c, where]
+                used[slot, where] = True
                 count += fresh
-        self.x[sets], self.used[sets], self.count[sets] = known, used, count
+        self.x[sets] = np.stack(known, axis=-1).transpose(1, 0, 2)
+        self.used[sets], self.count[sets] = used.T, count
         top = self.count.max(initial=0)
         self.x, self.used = self.x[:, :top], self.used[:, :top]
+
+    @property
+    def inside(self):
+        """Roots in the domain (of the free states). Only these are deflated: roots
+        outside add distortion to the deflated problem and are not worth finding again."""
+        tolerance = ZERO_TOLERANCE * self.scale[:, None, :]
+        return self.used & ((self.x >= self.low - tolerance) & (self.x <= self.high + tolerance)).all(axis=-1)
 
     def flat(self):
         """(owner, x) of every root."""
@@ -213,24 +250,28 @@ class _Solver:
     """Newton from given starts of given sets."""
 
     def __init__(self, kernels, params, scale, max_iterations):
-        self.kernels, self.params, self.scale = kernels, params, scale
+        self.kernels, self.params = kernels, params
         self.param_rows = np.ascontiguousarray(params.T)
         self.scale_rows = np.ascontiguousarray(scale.T)
         self.max_iterations = max_iterations
 
-    def run(self, sets, x0, valid=None, roots=None):
-        """Starts x0 (S, C, n) for `sets` (S,), where `valid` (S, C) if given,
-        deflating `roots` if given. Returns final iterates (S, C, n), convergence
-        (S, C), and per set of the batch whether f and J were finite at any start."""
+    def run(self, sets, x0, valid=None, roots=None, plain=None):
+        """Starts x0 (S, C, n) for `sets` (S,), where `valid` (S, C) if given, deflating
+        the in-domain `roots` if given. Returns final iterates (S, C, n), convergence
+        (S, C), and per set of the batch whether f and J were finite at some start."""
         count, width, n = x0.shape
         slots = np.arange(count * width) if valid is None else np.flatnonzero(valid)
         owner = sets[slots // width]
         deflation = {}
         if roots is not None:
-            deflation = dict(known=np.ascontiguousarray(roots.x[owner].transpose(1, 2, 0)),
-                             known_mask=np.ascontiguousarray(roots.used[owner].T),
-                             patience=DEFLATION_PATIENCE)
-        start = np.ascontiguousarray(x0.reshape(-1, n)[slots].T)
+            known, inside = _front(roots.x, roots.inside)
+            mask = inside[owner].T
+            if plain is not None:
+                mask = mask & ~plain.reshape(-1)[slots]
+            deflation = dict(known=np.ascontiguousarray(known[owner].transpose(1, 2, 0)),
+                             known_mask=np.ascontiguousarray(mask),
+                             patience=DEFLATION_PATIENCE, box=(roots.low, roots.high))
+        start = np.ascontiguousarray((x0.reshape(-1, n) if valid is None else x0.reshape(-1, n)[slots]).T)
         result = newton(self.kernels, start, self.param_rows[:, owner], self.scale_rows[:, owner],
                         self.max_iterations, **deflation)
         x = np.zeros((count * width, n))
@@ -242,20 +283,75 @@ class _Solver:
         return x.reshape(count, width, n), converged.reshape(count, width), evaluable
 
 
-def _deflation_starts(coarse, roots, sets, scale, low, high):
+def _deflation_starts(kernels, params, coarse, roots, sets, scale, low, high):
     """Starts for a deflation round, (S, C, n) with validity (S, C): the coarse grid,
-    and each known root moved by OFFSET (relative to |x| + scale) up and down each
-    axis, where that stays in the domain."""
+    and each root in the domain moved both ways along its slow direction(s), by
+    OFFSET[0] in step-size units, and by OFFSET[1] too where that direction's
+    eigenvalue is small (near a fold the partner root is close), where that stays in
+    the domain."""
     s = scale[sets]
     n = s.shape[1]
     grid = np.broadcast_to(coarse, (sets.size,) + coarse.shape) * s[:, None, :]
-    known, used = roots.x[sets], roots.used[sets]                           # (S, W, n)
-    step = np.concatenate([np.eye(n), -np.eye(n)]) * OFFSET                 # (2n, n)
-    moved = known[:, :, None, :] + step * (np.abs(known[:, :, None, :]) + s[:, None, None, :])
-    inside = ((moved >= low) & (moved <= high)).all(axis=-1) & used[:, :, None]
-    x0 = np.concatenate([grid, moved.reshape(sets.size, -1, n)], axis=1)
-    valid = np.concatenate([np.ones(grid.shape[:2], bool), inside.reshape(sets.size, -1)], axis=1)
-    return x0, valid
+    known, used = roots.x[sets], roots.inside[sets]                         # (S, W, n)
+    unit = np.abs(known) + s[:, None, :]
+    axes, slowness = _slow_directions(kernels, params, known, used, sets, unit, every_axis=n in EVERY_AXIS)
+    near_fold = slowness <= NEAR_FOLD                                       # (S, W, D)
+    steps, keep, plain = [], [], []
+    # The small move shrinks with the eigenvalue: the partner of a root at a fold or a
+    # transcritical crossing is about |eigenvalue| / curvature away.
+    small = np.clip(slowness, MIN_OFFSET, OFFSET[1])[..., None]
+    moves = [(OFFSET[0], used[:, :, None], False)]
+    moves += [(factor * small, used[:, :, None] & near_fold, SMALL_PLAIN) for factor in SMALL_FACTORS]
+    for size, wanted, undeflated in moves:
+        for sign in (1.0, -1.0):
+            steps.append(sign * size * axes)
+            keep.append(np.broadcast_to(wanted, axes.shape[:3]))
+            plain.append(np.full(axes.shape[:3], undeflated))
+    moved = known[:, :, None, :] + np.concatenate(steps, axis=2) * unit[:, :, None, :]
+    inside = ((moved >= low) & (moved <= high)).all(axis=-1) & np.concatenate(keep, axis=2)
+    plain = np.concatenate(plain, axis=2).reshape(sets.size, -1)
+    # Roots far beyond the scale show the scale was too small: the coarse grid again,
+    # spanning the largest root coordinate.
+    reach = np.where(roots.used[sets][:, :, None], np.abs(known), 0.0).max(axis=(1, 2))   # (S,)
+    wide = reach > WIDEN * s.max(axis=1)
+    far = np.broadcast_to(coarse, (sets.size,) + coarse.shape) * reach[:, None, None]
+    x0 = np.concatenate([grid, moved.reshape(sets.size, -1, n), far], axis=1)
+    valid = np.concatenate([np.ones(grid.shape[:2], bool), inside.reshape(sets.size, -1),
+                            np.broadcast_to(wide[:, None], far.shape[:2])], axis=1)
+    plain = np.concatenate([np.zeros(grid.shape[:2], bool), plain, np.zeros(far.shape[:2], bool)], axis=1)
+    return x0, valid, plain
+
+
+def _slow_directions(kernels, params, known, used, sets, unit, every_axis=False):
+    """Per known root, directions (S, W, D, n) towards J's eigenvalues nearest zero,
+    by a few steps of inverse iteration on J in units of `unit`, largest component 1:
+    D = 1 starting from (1, ..., 1), or D = n starting from each axis (inverse
+    iteration keeps a vector on an invariant coordinate face on that face). Also
+    (S, W, D) |J v| / |J|, small when the direction's eigenvalue is near zero."""
+    owner, slot = np.nonzero(used)
+    n = known.shape[2]
+    firsts = np.eye(n) if every_axis else np.ones((1, n))
+    out = np.zeros(known.shape[:2] + firsts.shape)
+    slowness = np.full(out.shape[:3], np.inf)
+    if owner.size == 0:
+        return out, slowness
+    x = np.ascontiguousarray(known[owner, slot].T)
+    fj = kernels.rhs_and_jacobian_rows(x, np.ascontiguousarray(params[sets[owner]].T))
+    u = unit[owner, slot].T
+    jac = (fj[n:].reshape(n, n, -1) * u[None, :, :] / u[:, None, :]).reshape(n * n, -1)
+    size = np.abs(jac).max(axis=0)
+    with np.errstate(all="ignore"):
+        for k, first in enumerate(firsts):
+            v = np.repeat(first[:, None], owner.size, axis=1)
+            for _ in range(INVERSE_ITERATIONS_PER_AXIS if every_axis else INVERSE_ITERATIONS):
+                v = solve_rows(jac, v)
+                v /= np.abs(v).max(axis=0)
+            bad = ~np.isfinite(v).all(axis=0)
+            v[:, bad] = 0.0
+            image = (jac.reshape(n, n, -1) * v[None, :, :]).sum(axis=1)         # J v
+            slowness[owner, slot, k] = np.where(bad, 0.0, np.abs(image).max(axis=0) / size)
+            out[owner, slot, k] = v.T
+    return out, slowness
 
 
 def _scales(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
@@ -275,34 +371,33 @@ def _verified(kernels: Kernels, roots: _Roots, params: np.ndarray, scale: np.nda
     small relative to the size of f's terms or whose next Newton correction is
     negligible, and that still differ from the roots kept before them."""
     owner, x = roots.flat()
-    p = params[owner]
-    for _ in range(2):
-        f, jac = kernels.rhs_and_jacobian(x, p)
-        d, ok = solve_batch(jac, f)
-        x = np.where(ok[:, None], x - d, x)
-    f, jac = kernels.rhs_and_jacobian(x, p)
-    d, ok = solve_batch(jac, f)
-    size = kernels.term_size(x, p)
-    with np.errstate(invalid="ignore"):
-        small_residual = (np.abs(f) <= RESIDUAL_TOLERANCE * size + 1e-300).all(axis=1)
-        small_correction = ok & (np.abs(d) <= CORRECTION_TOLERANCE * (np.abs(x) + scale[owner])).all(axis=1)
+    n = x.shape[1]
+    rows, p = np.ascontiguousarray(x.T), np.ascontiguousarray(params[owner].T)
+    with np.errstate(all="ignore"):
+        for polish in range(3):
+            fj = kernels.rhs_and_jacobian_rows(rows, p)
+            d = solve_rows(fj[n:], fj[:n])
+            if polish < 2:
+                rows = np.where(np.isfinite(d).all(axis=0), rows - d, rows)
+        x = rows.T
+        size = kernels.term_size(x, params[owner])
+        small_residual = (np.abs(fj[:n].T) <= RESIDUAL_TOLERANCE * size + 1e-300).all(axis=1)
+        small_correction = (np.abs(d.T) <= CORRECTION_TOLERANCE * (np.abs(x) + scale[owner])).all(axis=1)
     good = np.isfinite(x).all(axis=1) & (small_residual | small_correction)
-    polished = _Roots(roots.x.shape[0], x.shape[1], roots.floor)
     slot = np.nonzero(roots.used)[1]
     candidates = np.zeros(roots.x.shape)
     candidates[owner, slot] = x
     valid = np.zeros(roots.used.shape, bool)
     valid[owner, slot] = good
-    polished.add(np.arange(roots.x.shape[0]), candidates, valid)
+    polished = _Roots(roots.scale, roots.low, roots.high)
+    polished.add(np.arange(scale.shape[0]), candidates, valid)
     return polished.flat()
 
 
-def _same(known: np.ndarray, used: np.ndarray, candidate: np.ndarray, floor: np.ndarray) -> np.ndarray:
-    """Which known roots (S, W, n), where `used` (S, W), coincide with a candidate
-    (S, n): every coordinate within SAME_ROOT of their size, plus an absolute floor
-    (S, n) for coordinates at or near zero."""
-    same = used.copy()
-    for j in range(candidate.shape[1]):
-        a, b = known[:, :, j], candidate[:, j, None]
-        same &= np.abs(a - b) <= SAME_ROOT * (np.abs(a) + np.abs(b)) + floor[:, j, None]
-    return same
+def _front(x: np.ndarray, valid: np.ndarray):
+    """Move the valid entries of each row to the front, keeping their order, and drop
+    the columns no row needs: x (S, C, n), valid (S, C) -> (S, C', n), (S, C')."""
+    order = np.argsort(~valid, axis=1, kind="stable")
+    width = valid.sum(axis=1).max(initial=0)
+    order = order[:, :width]
+    return np.take_along_axis(x, order[:, :, None], axis=1), np.take_along_axis(valid, order, axis=1)

@@ -31,8 +31,18 @@ def solve_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
             return b / a
         if n == 2:
             a00, a01, a10, a11 = a
-            det = a00 * a11 - a01 * a10
-            return np.stack([(b[0] * a11 - a01 * b[1]) / det, (a00 * b[1] - b[0] * a10) / det])
+            b0, b1 = b
+            inverse = a00 * a11
+            inverse -= a01 * a10
+            np.divide(1.0, inverse, out=inverse)
+            x = np.empty(b.shape)
+            np.multiply(b0, a11, out=x[0])
+            x[0] -= a01 * b1
+            x[0] *= inverse
+            np.multiply(a00, b1, out=x[1])
+            x[1] -= b0 * a10
+            x[1] *= inverse
+            return x
         if n == 3:
             a00, a01, a02, a10, a11, a12, a20, a21, a22 = a
             c00 = a11 * a22 - a12 * a21

@@ -9,13 +9,16 @@ an iterate far away. There is no line search on ‖f‖: across the models we me
 it saved, because the equations of a model are often scaled very differently, and
 every start pays for it. A start converges when its step size falls below
 STEP_TOLERANCE; it gives up when the step size has not shrunk by 10 % for `patience`
-iterations, when it leaves the box of FAR_AWAY scales, or when f or J stops being
-finite.
+iterations (which also ends iterates running off to infinity: their step size stays
+near MAX_STEP), or when f or J stops being finite.
 
 Deflation (Farrell, Birkisson & Funke, SIAM J. Sci. Comput. 37 (2015) A2026) solves
 G(x) = M(x) f(x) with M(x) = Π_r (1/‖(x − r)/s‖² + 1) for the known roots r, so Newton
 can no longer converge to them. The Newton step for G is d / (1 + ∇log M · d)
-(Sherman–Morrison on the rank-one update of J), so one linear solve serves both.
+(Sherman–Morrison on the rank-one update of J), so one linear solve serves both. A
+deflated run has nowhere to go once every root is known; it then keeps being drawn
+back to a known root (its plain Newton step lands much closer to one), and each such
+iteration counts ATTRACTED_COST extra iterations towards its patience.
 
 Layout and cost: arrays hold one row per state (or parameter) and one column per
 start, so the generated kernels and the closed-form solves run on contiguous rows.
@@ -35,11 +38,13 @@ import numpy as np
 from poise.equilibria.linalg import solve_rows
 from poise.model.kernels import Kernels
 
-STEP_TOLERANCE = 1e-11      # step size that counts as converged
+STEP_TOLERANCE = 1e-9       # step size that counts as converged (then polished)
 MAX_STEP = 4.0              # longer steps are shortened to this size
-FAR_AWAY = 1e8              # |x| beyond this many scales: the iterate diverges
 PATIENCE = 6                # iterations without a 10 % smaller step before giving up
 TILE = 8192                 # starts per tile: a tile's rows stay in cache
+ATTRACTION = 0.01           # deflated: the plain Newton step lands this much closer (squared)
+ATTRACTED_COST = 3          # deflated: such an iteration counts as this many more without progress
+OUTSIDE = 0.5               # deflated: how far (in scales) a start may leave the box
 PARK = 4                    # a tile parks its stragglers below 1/PARK of its size
 
 
@@ -59,7 +64,8 @@ class NewtonResult:
 
 def newton(kernels: Kernels, x0: np.ndarray, params: np.ndarray, scale: np.ndarray,
            max_iterations: int, known: np.ndarray | None = None,
-           known_mask: np.ndarray | None = None, patience: int = PATIENCE) -> NewtonResult:
+           known_mask: np.ndarray | None = None, patience: int = PATIENCE,
+           box: tuple[np.ndarray, np.ndarray] | None = None) -> NewtonResult:
     """Run Newton (deflated when `known` is given) from every column of `x0`.
 
     Parameters
@@ -69,6 +75,8 @@ def newton(kernels: Kernels, x0: np.ndarray, params: np.ndarray, scale: np.ndarr
     scale : (n, K) typical size of each state, for step sizes and deflation norms.
     max_iterations, patience : limits per start.
     known, known_mask : (R, n, K) roots to deflate and (R, K) which of them are real.
+    box : (low, high), each (n,): for deflated runs, which look for roots inside it
+        only: a start gives up once it is more than OUTSIDE scales out of the box.
 
     Returns
     -------
@@ -86,7 +94,7 @@ def newton(kernels: Kernels, x0: np.ndarray, params: np.ndarray, scale: np.ndarr
             part = slice(low, min(count, low + TILE))
             tile = _Tile.start(kernels, x0[:, part], params[:, part], scale[:, part], low,
                                None if known is None else known[..., part] / scale[:, part],
-                               None if known is None else known_mask[:, part])
+                               None if known is None else known_mask[:, part], _box_rows(box))
             result.evaluable[tile.where] = True
             parked += _iterate(kernels, tile, max_iterations, patience, result, TILE // PARK)
             if sum(t.where.size for t in parked) >= TILE:
@@ -122,24 +130,30 @@ def _iterate(kernels, t, max_iterations, patience, result, park_below):
 
 
 class _Tile:
-    """Live starts: iterate x, its Newton step d, the step's size, whether x is within
-    bounds, progress counters, and (for deflation) the known roots in units of the
-    scale. `where` maps columns back to the caller's starts; `open` marks the starts
-    not yet finished."""
+    """Live starts: iterate x, its Newton step d, the step's size, progress counters,
+    and (for deflation) the known roots in units of the scale and which slots are
+    real. `where` maps columns back to the caller's starts; `open` marks the starts
+    not yet finished; `box` holds (row, low, high) for bounded states (deflation)."""
 
-    ARRAYS = ("x", "p", "s", "d", "size", "near", "best", "waited", "age", "where", "open",
+    ARRAYS = ("x", "p", "s", "d", "size", "best", "waited", "age", "where", "open",
               "rho", "used")
+    box = ()
 
     @classmethod
-    def start(cls, kernels, x, p, s, offset, rho=None, used=None):
+    def start(cls, kernels, x, p, s, offset, rho=None, used=None, box=()):
         fj = kernels.rhs_and_jacobian_rows(x, p)
-        keep = np.flatnonzero(np.isfinite(fj).all(axis=0))
+        finite = np.isfinite(fj).all(axis=0)
         tile = cls()
-        tile.x, tile.p, tile.s = x.take(keep, axis=1), p.take(keep, axis=1), s.take(keep, axis=1)
-        tile.rho = tile.used = None
-        if rho is not None:
-            tile.rho, tile.used = rho.take(keep, axis=-1), used.take(keep, axis=-1)
-        tile.d, tile.size, tile.near = _newton_step(fj.take(keep, axis=1), tile.x, tile.s, tile.deflation)
+        tile.x, tile.p, tile.s, tile.rho, tile.used, tile.box = x, p, s, rho, used, box
+        if finite.all():
+            keep = np.arange(finite.size)
+        else:
+            keep = np.flatnonzero(finite)
+            fj = fj.take(keep, axis=1)
+            for name in ("x", "p", "s", "rho", "used"):
+                if getattr(tile, name) is not None:
+                    setattr(tile, name, getattr(tile, name).take(keep, axis=-1))
+        tile.d, tile.size, _ = _newton_step(fj, tile.x, tile.s, tile.deflation)
         tile.best = np.full(keep.size, np.inf)
         tile.waited = np.zeros(keep.size, np.int64)
         tile.age = np.zeros(keep.size, np.int64)
@@ -162,6 +176,7 @@ class _Tile:
         if len(tiles) == 1:
             return tiles[0]
         whole = cls()
+        whole.box = tiles[0].box
         for name in cls.ARRAYS:
             values = [getattr(t, name) for t in tiles]
             setattr(whole, name, None if values[0] is None else np.concatenate(values, axis=-1))
@@ -173,52 +188,96 @@ def _step(kernels, t, patience):
     negligible; the start may go on."""
     t.age += 1
     size = t.size
-    ok = (size < np.inf) & (t.waited <= patience) & t.near
-    done = ok & (size <= STEP_TOLERANCE)
-    t.x = t.x - t.d * np.minimum(1.0, MAX_STEP / size)
+    ok = size < np.inf                          # False for NaN too
+    ok &= t.waited <= patience
+    done = size <= STEP_TOLERANCE
+    done &= ok
+    factor = MAX_STEP / size
+    np.minimum(factor, 1.0, out=factor)
+    step = t.d * factor
+    t.x = np.subtract(t.x, step, out=step)
     fj = kernels.rhs_and_jacobian_rows(t.x, t.p)
-    t.d, t.size, t.near = _newton_step(fj, t.x, t.s, t.deflation)
+    t.d, t.size, attracted = _newton_step(fj, t.x, t.s, t.deflation)
     improved = t.size < 0.9 * t.best
+    waited = t.waited + 1
+    if attracted is not None:
+        improved &= ~attracted
+        waited += ATTRACTED_COST * attracted
+    for i, low, high in t.box:
+        outside = (t.x[i] < low - OUTSIDE * t.s[i]) | (t.x[i] > high + OUTSIDE * t.s[i])
+        improved &= ~outside
+        waited += (patience + 1) * outside      # gives up
     t.best = np.where(improved, t.size, t.best)
-    t.waited += 1
-    t.waited *= ~improved
+    waited *= ~improved
+    t.waited = waited
     return done, ok
 
 
 def _newton_step(fj, x, s, deflation):
-    """The (deflated) Newton step d at x from f and J (rows of `fj`); its size
-    max_i |d_i| / (|x_i| + s_i); and whether x lies within FAR_AWAY scales."""
+    """The (deflated) Newton step d at x from f and J (rows of `fj`), and its size
+    max_i |d_i| / (|x_i| + s_i)."""
     n = x.shape[0]
     d = solve_rows(fj[n:], fj[:n])                             # J d = f
+    attracted = None
     if deflation is not None:
-        d /= 1.0 + _deflation_slope(x, s, d, deflation)
+        slope, attracted = _deflation_slope(x, s, d, deflation)
+        d /= slope
     magnitude = np.abs(x)
-    near = magnitude <= FAR_AWAY * s
     magnitude += s
     relative = np.abs(d)
     relative /= magnitude
-    size, inside = relative[0], near[0]
-    for i in range(1, n):
-        size = np.maximum(size, relative[i])
-        inside = inside & near[i]
-    return d, size, inside
+    if n == 1:
+        return d, relative[0], attracted
+    size = np.maximum(relative[0], relative[1])
+    for i in range(2, n):
+        np.maximum(size, relative[i], out=size)
+    return d, size, attracted
 
 
 def _deflation_slope(x, s, d, deflation):
-    """∇log M · d at x for M = Π_r (1/‖z − ρ_r‖² + 1), with z = x/s and ρ_r the known
-    roots in the same units; unused slots add exactly zero."""
+    """1 + ∇log M · d at x for M = Π_r (1/‖z − ρ_r‖² + 1), with z = x/s and ρ_r the
+    known roots in the same units (unused slots add exactly zero); and whether the
+    plain Newton step lands much closer to a known root than x is (ATTRACTION, in
+    squared distance), which marks a deflated run with nowhere to go."""
     rho, used = deflation
     z = x / s
     e = d / s
+    step2 = _dot(e, e)
     total = np.zeros(x.shape[1])
+    attracted = np.zeros(x.shape[1], bool)
     for root, real in zip(rho, used):
+        if not real.any():
+            continue                                # padding only: adds exactly nothing
         diff = z - root
         dist2 = _dot(diff, diff)
+        along = _dot(diff, e)
+        # |z − e − ρ|² < ATTRACTION |z − ρ|², i.e. (1 − A) q − 2 along + |e|² < 0
+        test = dist2 * (1.0 - ATTRACTION)
+        test -= 2.0 * along
+        test += step2
+        near = test < 0.0
         # ∇ log(1/q + 1) = −2 (z − ρ) / (q (1 + q)) with q = |z − ρ|²
-        slope = _dot(diff, e)
-        slope /= dist2 * (1.0 + dist2)
-        total += np.where(real, slope, 0.0)
-    return -2.0 * total
+        dist2 += dist2 * dist2
+        along /= dist2
+        if real.all():
+            attracted |= near
+            total += along
+        else:
+            near &= real
+            attracted |= near
+            total += np.where(real, along, 0.0)
+    total *= -2.0
+    total += 1.0
+    return total, attracted
+
+
+def _box_rows(box):
+    """(row, low, high) for the states with a finite bound."""
+    if box is None:
+        return ()
+    low, high = box
+    return tuple((i, low[i], high[i]) for i in range(len(low))
+                 if np.isfinite(low[i]) or np.isfinite(high[i]))
 
 
 def _dot(a, b):
