@@ -596,3 +596,47 @@ def test_fast_reaction_and_conversion_factor_are_refused(tmp_path):
     _check_ok(model.getSpecies("A").setConversionFactor("scale"))
     with pytest.raises(InputError, match="conversionFactor of species 'A'"):
         read_sbml(_write(document, tmp_path, "factor.xml"))
+
+
+@pytest.mark.parametrize("level, version", [(3, 2), (2, 4)])
+def test_sbml_study_and_hand_written_study_have_the_same_steady_states(tmp_path, level, version):
+    # reference: the same network typed by hand as a study file (law of mass action);
+    # both go through poise's loader and finder, and must agree state by state.
+    from poise.inspect import inspect_point
+    from poise.study.loader import load_study
+
+    file = _write_michaelis_menten(tmp_path, level, version)
+    imported = load_study(_study(tmp_path, "from_sbml.toml", f'[model]\nsbml = "{file.name}"\n'))
+    total = MM_INITIAL["E"] + MM_INITIAL["C"]
+    v = MM_VALUES
+    by_hand = load_study(_study(tmp_path, "by_hand.toml", f"""
+[model]
+states = ["E", "S", "C", "P"]
+[model.ode]
+E = "-k_on*E*S + k_off*C + k_cat*C"
+S = "k_in - k_on*E*S + k_off*C"
+C = "k_on*E*S - k_off*C - k_cat*C"
+P = "k_cat*C - k_out*P"
+[model.conserved]
+E_total = "E + C"
+[parameters]
+k_on = {v['k_on']}
+k_off = {v['k_off']}
+k_cat = {v['k_cat']}
+k_in = {v['k_in']}
+k_out = {v['k_out']}
+E_total = {total}
+"""))
+    a = inspect_point(imported)["equilibria"]
+    b = inspect_point(by_hand)["equilibria"]
+    assert len(a) == len(b) == 1
+    for state in ("E", "S", "C", "P"):
+        assert a[0]["state"][state] == pytest.approx(b[0]["state"][state], rel=1e-9)
+    assert a[0]["class"] == b[0]["class"]
+    assert sorted(re for re, _ in a[0]["eigenvalues"]) == pytest.approx(sorted(re for re, _ in b[0]["eigenvalues"]), rel=1e-7)
+
+
+def _study(folder: Path, name: str, text: str) -> Path:
+    path = folder / name
+    path.write_text(text)
+    return path

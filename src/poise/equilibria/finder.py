@@ -3,22 +3,29 @@
 1. Multistart: Newton from a grid of starts (up to 3 free states) or a scrambled Sobol
    point set (more states) over a box scaled per set from the model: a conserved total
    or finite domain limit where one bounds a state, else the parameters' magnitude.
-   Grid levels are spaced logarithmically and include exact zeros, where ecological
-   and chemical models keep many of their steady states (an iterate started on an
-   invariant face stays on it).
-2. Deflation rounds, for every set that found a root in the domain: Newton again with
-   those roots deflated, from a coarse grid and from each such root moved a little
-   both ways along its Jacobian's slowest direction (for 3 states, along the
-   directions inverse iteration reaches from each axis). Near a fold the missing
-   partner of a root lies along that direction, and deflation pushes the iterate out
-   along it. A set goes on to the next round only if its last round found a new root.
+   Grid levels include exact zeros, where ecological and chemical models keep many of
+   their steady states (an iterate started on an invariant face stays on it).
+2. Deflation rounds, for every set with a root in the domain: Newton again with those
+   roots deflated, from
+   - a coarse grid (and the same grid stretched to the largest root coordinate, when
+     roots lie far beyond the scale, which shows the scale was too small);
+   - each such root moved both ways along its Jacobian's slowest direction (for 3
+     states, along the directions inverse iteration reaches from each axis, which
+     stay on coordinate faces): deflation pushes the iterate out along it;
+   - where that direction's eigenvalue is nearly zero (a fold or a transcritical
+     crossing is near, and the root's partner is about |eigenvalue| / curvature
+     away), the root moved by that much and three times that much, with plain
+     Newton: deflating a root so close to the one sought hides the latter.
+   A set goes on to the next round only if its last round found a new root.
 3. Roots are de-duplicated as they arrive (in the order of the starts), then polished,
    verified (residual small relative to the size of f's terms, or a negligible Newton
    correction), and filtered to the domain.
 
 Every decision is made per set from that set's own results, so a set's steady states
 never depend on which other sets share its batch (no "stop when no set found
-anything"), and there is no randomness (the Sobol points have a fixed seed).
+anything"), and there is no randomness (the Sobol points have a fixed seed). The
+numbers below were chosen by measuring completeness against closed-form steady states
+and throughput (benchmarks/bench_throughput.py).
 """
 
 from __future__ import annotations
@@ -37,16 +44,13 @@ CORRECTION_TOLERANCE = 1e-9  # or: the next Newton step, relative to |x| + scale
 ZERO_TOLERANCE = 1e-9        # |x_i| relative to the state's scale counts as zero
 SAME_ROOT = 1e-6             # relative distance under which two roots are one
 DEFLATION_PATIENCE = 6       # deflated runs: iterations without a 10 % smaller step
-OFFSET = (0.03, 0.005)       # deflation starts: roots moved by these step sizes
-WIDEN = 2.0                  # a root coordinate this many scales out widens the grid
-MIN_OFFSET = 1e-4
-SMALL_FACTORS = (1.0, 3.0)
-SMALL_PLAIN = True
-NEAR_FOLD = 0.2             # |J v| / |J| below which a root also gets the small move
-# Steps of inverse iteration for the slow direction (converged), and for the per-axis
-# directions (few, so that they stay apart).
-INVERSE_ITERATIONS = 6
-INVERSE_ITERATIONS_PER_AXIS = 2
+MOVE = 0.03                  # deflation starts: roots moved this far (step-size units)
+NEAR_FOLD = 0.2              # slowness |J v| / max|J| below which roots get small moves
+SMALL_MOVES = (1.0, 3.0)     # ... of these multiples of the slowness,
+SMALL_MOVE_RANGE = (1e-4, 0.005)  # ... kept within this range
+WIDEN = 2.0                  # a root coordinate this many scales out stretches the grid
+INVERSE_ITERATIONS = 6       # for the slowest direction (converged)
+INVERSE_ITERATIONS_PER_AXIS = 2  # for one direction per axis (few, so they stay apart)
 SOBOL_SEED = 12345
 
 # Start levels (fractions of the scale) by number of free states: one-sided for states
@@ -284,41 +288,35 @@ class _Solver:
 
 
 def _deflation_starts(kernels, params, coarse, roots, sets, scale, low, high):
-    """Starts for a deflation round, (S, C, n) with validity (S, C): the coarse grid,
-    and each root in the domain moved both ways along its slow direction(s), by
-    OFFSET[0] in step-size units, and by OFFSET[1] too where that direction's
-    eigenvalue is small (near a fold the partner root is close), where that stays in
-    the domain."""
+    """Starts for a deflation round (see the module notes): x0 (S, C, n), whether each
+    is used (S, C), and whether it runs without deflation (S, C)."""
     s = scale[sets]
-    n = s.shape[1]
-    grid = np.broadcast_to(coarse, (sets.size,) + coarse.shape) * s[:, None, :]
+    count, n = s.shape
     known, used = roots.x[sets], roots.inside[sets]                         # (S, W, n)
     unit = np.abs(known) + s[:, None, :]
     axes, slowness = _slow_directions(kernels, params, known, used, sets, unit, every_axis=n in EVERY_AXIS)
-    near_fold = slowness <= NEAR_FOLD                                       # (S, W, D)
-    steps, keep, plain = [], [], []
-    # The small move shrinks with the eigenvalue: the partner of a root at a fold or a
-    # transcritical crossing is about |eigenvalue| / curvature away.
-    small = np.clip(slowness, MIN_OFFSET, OFFSET[1])[..., None]
-    moves = [(OFFSET[0], used[:, :, None], False)]
-    moves += [(factor * small, used[:, :, None] & near_fold, SMALL_PLAIN) for factor in SMALL_FACTORS]
-    for size, wanted, undeflated in moves:
+    near_fold = used[:, :, None] & (slowness <= NEAR_FOLD)                  # (S, W, D)
+    small = np.clip(slowness, *SMALL_MOVE_RANGE)[..., None]
+    moves = [(MOVE, np.broadcast_to(used[:, :, None], near_fold.shape), False)]
+    moves += [(factor * small, near_fold, True) for factor in SMALL_MOVES]
+    steps, wanted, plain = [], [], []
+    for size, where, undeflated in moves:
         for sign in (1.0, -1.0):
             steps.append(sign * size * axes)
-            keep.append(np.broadcast_to(wanted, axes.shape[:3]))
-            plain.append(np.full(axes.shape[:3], undeflated))
+            wanted.append(where)
+            plain.append(np.full(where.shape, undeflated))
     moved = known[:, :, None, :] + np.concatenate(steps, axis=2) * unit[:, :, None, :]
-    inside = ((moved >= low) & (moved <= high)).all(axis=-1) & np.concatenate(keep, axis=2)
-    plain = np.concatenate(plain, axis=2).reshape(sets.size, -1)
-    # Roots far beyond the scale show the scale was too small: the coarse grid again,
-    # spanning the largest root coordinate.
+    wanted = np.concatenate(wanted, axis=2) & ((moved >= low) & (moved <= high)).all(axis=-1)
+
+    grid = np.broadcast_to(coarse, (count,) + coarse.shape) * s[:, None, :]
     reach = np.where(roots.used[sets][:, :, None], np.abs(known), 0.0).max(axis=(1, 2))   # (S,)
-    wide = reach > WIDEN * s.max(axis=1)
-    far = np.broadcast_to(coarse, (sets.size,) + coarse.shape) * reach[:, None, None]
-    x0 = np.concatenate([grid, moved.reshape(sets.size, -1, n), far], axis=1)
-    valid = np.concatenate([np.ones(grid.shape[:2], bool), inside.reshape(sets.size, -1),
-                            np.broadcast_to(wide[:, None], far.shape[:2])], axis=1)
-    plain = np.concatenate([np.zeros(grid.shape[:2], bool), plain, np.zeros(far.shape[:2], bool)], axis=1)
+    stretched = np.broadcast_to(coarse, grid.shape) * reach[:, None, None]
+    wide = np.broadcast_to((reach > WIDEN * s.max(axis=1))[:, None], grid.shape[:2])
+
+    x0 = np.concatenate([grid, stretched, moved.reshape(count, -1, n)], axis=1)
+    valid = np.concatenate([np.ones(grid.shape[:2], bool), wide, wanted.reshape(count, -1)], axis=1)
+    plain = np.concatenate([np.zeros((count, 2 * grid.shape[1]), bool),
+                            np.concatenate(plain, axis=2).reshape(count, -1)], axis=1)
     return x0, valid, plain
 
 

@@ -1,0 +1,88 @@
+"""Which finder runs, and the miss-rate check that Newton runs carry."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from poise.api import run_study
+from poise.equilibria.choice import choose_method
+from poise.model import compile_model
+from poise.study.loader import load_study
+
+from helpers import run_cli, write_study
+
+COMPETITION = """
+    title = "two competing species"
+    [model]
+    states = ["x", "y"]
+    [model.ode]
+    x = "x*(r1 - x - a12*y)"
+    y = "y*(r2 - a21*x - y)"
+    [parameters]
+    r1 = {{ dist = "uniform", low = 1, high = 3 }}
+    r2 = {{ dist = "uniform", low = 1, high = 3 }}
+    a12 = {{ dist = "uniform", low = 0.2, high = 2.5 }}
+    a21 = {{ dist = "uniform", low = 0.2, high = 2.5 }}
+    [[claims]]
+    name = "coexistence"
+    holds = "any(x > 0 and y > 0)"
+    [sampling]
+    size = {size}
+    design = "random"
+    seed = 4
+    [sensitivity]
+    method = "none"
+    [solver]
+    {solver}
+"""
+
+
+def test_auto_takes_homotopy_for_rational_models_and_newton_otherwise(tmp_path):
+    rational = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver=""), "a.toml"))
+    assert choose_method(rational, compile_model(rational)) == "homotopy"
+    transcendental = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver="").replace(
+        'x = "x*(r1 - x - a12*y)"', 'x = "x*(r1 - exp(x) - a12*y)"'), "b.toml"))
+    assert choose_method(transcendental, compile_model(transcendental)) == "newton"
+    forced = write_study(tmp_path, COMPETITION.format(size=8, solver='method = "homotopy"').replace(
+        'x = "x*(r1 - x - a12*y)"', 'x = "x*(r1 - exp(x) - a12*y)"'), "c.toml")
+    status, _, err = run_cli("check", str(forced))
+    assert status == 2 and "[solver]" in err and "method" in err
+
+
+def test_homotopy_and_newton_agree_with_the_closed_form(tmp_path):
+    # source: closed form of the Lotka–Volterra competition steady states (e.g. Strogatz
+    # 1994 §6.4): (0,0), (r1,0), (0,r2) and, when positive, the interior point
+    # ((r1 - a12 r2)/(1 - a12 a21), (r2 - a21 r1)/(1 - a12 a21)).
+    for solver in ('method = "homotopy"', 'method = "newton"'):
+        study = load_study(write_study(tmp_path, COMPETITION.format(size=150, solver=solver)))
+        result = run_study(study, tmp_path / solver.split('"')[1], jobs=1, report=False)
+        s = result.samples.set_index("sample_id")
+        r1, r2, a12, a21 = (s[k].to_numpy() for k in ("r1", "r2", "a12", "a21"))
+        det = 1 - a12 * a21
+        interior = ((r1 - a12 * r2) / det > 0) & ((r2 - a21 * r1) / det > 0)
+        expected = 3 + interior.astype(int)
+        assert np.array_equal(result.outcomes["n_steady"].to_numpy(dtype=int), expected), solver
+        assert np.array_equal(result.outcomes["coexistence"].to_numpy(dtype=bool), interior)
+
+
+def test_newton_runs_report_how_often_a_steady_state_was_missed(tmp_path):
+    # A deliberately starved Newton search (one start, no deflation) misses steady states;
+    # the completeness check re-solves a random subsample by homotopy continuation and
+    # must report misses. The truth per set comes from the closed form above.
+    starved = 'method = "newton"\n    starts = 1\n    deflation_rounds = 0'
+    study = load_study(write_study(tmp_path, COMPETITION.format(size=120, solver=starved)))
+    result = run_study(study, tmp_path / "starved", jobs=1, report=False)
+    check = result.summary["solver"]["completeness"]
+    assert result.summary["solver"]["method"] == "newton"
+    assert check["reference"] == "homotopy continuation"
+    assert check["checked"] == 120
+    s = result.samples.set_index("sample_id")
+    r1, r2, a12, a21 = (s[k].to_numpy() for k in ("r1", "r2", "a12", "a21"))
+    det = 1 - a12 * a21
+    expected = 3 + (((r1 - a12 * r2) / det > 0) & ((r2 - a21 * r1) / det > 0)).astype(int)
+    truly_missed = int((result.outcomes["n_steady"].to_numpy(dtype=int) < expected).sum())
+    assert truly_missed > 0
+    assert check["missed"] == truly_missed
+    lo, hi = check["ci95"]
+    assert lo <= check["fraction"] <= hi
