@@ -199,3 +199,55 @@ def test_missing_conservation_law_suggests_the_line(tmp_path):
     assert status == 2
     assert "[model.conserved]" in err and '"E + C"' in err
     assert "Traceback" not in err
+
+
+CIRCLE = """
+    [model]
+    states = ["x", "y"]
+    [model.ode]
+    x = "x*(x**2 + y**2 - R)"
+    y = "y*(x**2 + y**2 - R)"
+    [model.domain]
+    x = [-inf, inf]
+    y = [-inf, inf]
+    [parameters]
+    R = 2.0
+    [solver]
+    method = "newton"
+"""
+
+
+def test_steady_states_on_a_continuum_are_reported_as_such(tmp_path):
+    # closed form: f = (x, y)·(x² + y² − R) vanishes on the whole circle x² + y² = R
+    # (a curve of steady states) and at the isolated origin.
+    equilibria = steady_states(tmp_path, CIRCLE)
+    origin = [eq for eq in equilibria if eq["state"] == {"x": 0.0, "y": 0.0}]
+    assert len(origin) == 1 and not origin[0]["continuum"]
+    assert origin[0]["class"] == "stable node"   # J = -R·I at the origin
+    ring = [eq for eq in equilibria if eq is not origin[0]]
+    assert ring and all(eq["continuum"] for eq in ring)
+    for eq in ring:
+        assert eq["state"]["x"] ** 2 + eq["state"]["y"] ** 2 == pytest.approx(2.0, rel=1e-9)
+        assert eq["class"] == "non-hyperbolic"
+
+
+def test_an_isolated_fold_is_not_a_continuum(tmp_path):
+    # source: saddle-node bifurcation normal form x' = r + x² at r = 0 (Strogatz 1994 §3.1):
+    # x = 0 is an isolated steady state with a zero eigenvalue.
+    text = """
+        [model]
+        states = ["x"]
+        [model.ode]
+        x = "r + x**2"
+        [model.domain]
+        x = [-inf, inf]
+        [parameters]
+        r = 0.0
+        [solver]
+        method = "newton"
+    """
+    equilibria = steady_states(tmp_path, text)
+    assert len(equilibria) == 1
+    assert equilibria[0]["state"]["x"] == pytest.approx(0.0, abs=1e-6)
+    assert equilibria[0]["class"] == "non-hyperbolic"
+    assert not equilibria[0]["continuum"]

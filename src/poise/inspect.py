@@ -39,6 +39,7 @@ def inspect_point(study: Study, overrides: Mapping[str, float] | None = None) ->
             "class": row["class"],
             "stability": row["stability"],
             "margin": float(row["margin"]),
+            "continuum": bool(row["continuum"]),
         }
         if two_d:
             entry.update(trace=float(row["trace"]), determinant=float(row["determinant"]),
@@ -67,6 +68,8 @@ def inspect_text(study: Study, result: dict) -> str:
         state = "  ".join(f"{k} = {_num(v)}" for k, v in eq["state"].items())
         lines.append(f"#{number}  {state}   [{eq['label']}]")
         lines.append(f"    class       {eq['class']} ({eq['stability']}), margin {_num(eq['margin'])}")
+        if eq["continuum"]:
+            lines.append("    not isolated: it lies on a continuum (curve or surface) of steady states")
         eigen = ", ".join(_complex(re, im) for re, im in eq["eigenvalues"])
         lines.append(f"    eigenvalues {eigen}")
         if "trace" in eq:

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from poise.equilibria.continuum import on_continuum
 from poise.equilibria.finder import ZERO_TOLERANCE, FoundStates, find_steady_states
 from poise.model import CompiledModel
 from poise.stability.classify import CLASS_NAMES, Classification, classify
@@ -55,13 +56,35 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
                                    model.domain_low, model.domain_high, **newton_settings)
     jacobians = model.kernels.jacobian(found.free, params[found.owner])
     classes = classify(jacobians)
+    continuum = on_continuum(model.kernels, found.free, params[found.owner], jacobians,
+                             _real_zero_eigenvalue(classes, jacobians))
+    if continuum.any():
+        # A continuum yields as many "steady states" as starts that reached it: keep one
+        # representative per set and label (which states are zero, positive, negative).
+        keys = pd.DataFrame({"owner": found.owner, "label": labels(study.states, found.full)})
+        keep = ~(continuum & keys.duplicated())
+        found = FoundStates(owner=found.owner[keep], free=found.free[keep], full=found.full[keep],
+                            ok=found.ok, reason=found.reason)
+        jacobians, continuum = jacobians[keep], continuum[keep]
+        classes = classify(jacobians)
     ok, reason = _mark_bad_jacobians(found, jacobians)
 
     equilibria = _equilibria_table(study, found, classes, sample_ids)
+    equilibria.insert(equilibria.columns.get_loc("oscillatory") + 1, "continuum", continuum)
     sets = _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason)
     keep = ok[found.owner]
     return ChunkResult(sets=sets, equilibria=equilibria[keep].reset_index(drop=True),
                        jacobians=jacobians[keep])
+
+
+def _real_zero_eigenvalue(classes: Classification, jacobians: np.ndarray) -> np.ndarray:
+    """Steady states with a real eigenvalue that is zero within the classifier's tolerance."""
+    if jacobians.shape[1] == 0:
+        return np.zeros(jacobians.shape[0], bool)
+    with np.errstate(invalid="ignore"):
+        tol = 1e-8 * np.maximum(1.0, np.linalg.norm(jacobians, axis=(1, 2)))
+        zero = (np.abs(classes.eigenvalues.real) <= tol[:, None]) & (np.abs(classes.eigenvalues.imag) <= tol[:, None])
+    return zero.any(axis=1)
 
 
 def _mark_bad_jacobians(found: FoundStates, jacobians: np.ndarray):

@@ -281,7 +281,17 @@ class _Processes:
         while queue or flight:
             while queue and len(flight) < window:
                 task = queue.pop()
-                flight[executor.submit(run_chunk, *arguments(task))] = task
+                try:
+                    future = executor.submit(run_chunk, *arguments(task))
+                except BrokenProcessPool:
+                    # A worker died since the last wait: put the task back; the chunks
+                    # in flight report the death below, or a fresh pool takes over.
+                    queue.append(task)
+                    if flight:
+                        break
+                    executor = self._executor()
+                    continue
+                flight[future] = task
             finished, _ = wait(flight, return_when=FIRST_COMPLETED)
             outcomes, lost, death = [], [], None
             for future in finished:

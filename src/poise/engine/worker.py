@@ -79,7 +79,7 @@ def equilibria_schema(states, dimension: int) -> pa.Schema:
     fields += [pa.field(s, pa.float64()) for s in states]
     fields += [pa.field("label", pa.string()), pa.field("class", pa.string()),
                pa.field("stability", pa.string()), pa.field("margin", pa.float64()),
-               pa.field("oscillatory", pa.bool_())]
+               pa.field("oscillatory", pa.bool_()), pa.field("continuum", pa.bool_())]
     for i in range(dimension):
         fields += [pa.field(f"eig_re_{i}", pa.float64()), pa.field(f"eig_im_{i}", pa.float64())]
     fields += [pa.field(name, pa.float64()) for name in ("trace", "determinant", "discriminant")]

@@ -152,6 +152,11 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
     scale = _scales(kernels, params, magnitude)                            # (B, n)
     free_columns = np.asarray(kernels.free_columns, dtype=int)
     free_low, free_high = domain_low[free_columns], domain_high[free_columns]
+    if n == 0:      # every state fixed by conserved totals: one candidate per set
+        root_owner, root_x = np.arange(batch), np.zeros((batch, 0))
+        evaluable = np.isfinite(kernels.full_states(root_x, params)).all(axis=1)
+        return _found(kernels, params, scale, domain_low, domain_high, root_owner[evaluable],
+                      root_x[evaluable], evaluable)
     solve = _Solver(kernels, params, scale, max_iterations)
 
     grid = start_points(n, free_low < 0, starts)
@@ -161,8 +166,8 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
     roots.add(everyone, x, converged)
 
     coarse = start_points(n, free_low < 0, starts, coarse=True)
-    searching = roots.inside.any(axis=1)
-    for _ in range(deflation_rounds if n else 0):
+    searching = evaluable.copy()      # sets with no root yet try the coarse grid too
+    for _ in range(deflation_rounds):
         sets = np.flatnonzero(searching)
         if sets.size == 0:
             break
@@ -174,6 +179,12 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
         searching[sets] = roots.count[sets] > before
 
     root_owner, root_x = _verified(kernels, roots, params, scale)
+    return _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable)
+
+
+def _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable) -> FoundStates:
+    """Full states, snapped to zero and filtered to the domain, sorted; set status."""
+    free_columns = np.asarray(kernels.free_columns, dtype=int)
     full = kernels.full_states(root_x, params[root_owner])
     full_scale = _full_scale(full, root_owner, scale)
     full = np.where(np.abs(full) <= ZERO_TOLERANCE * full_scale, 0.0, full)
@@ -309,7 +320,7 @@ def _deflation_starts(kernels, params, coarse, roots, sets, scale, low, high):
     wanted = np.concatenate(wanted, axis=2) & ((moved >= low) & (moved <= high)).all(axis=-1)
 
     grid = np.broadcast_to(coarse, (count,) + coarse.shape) * s[:, None, :]
-    reach = np.where(roots.used[sets][:, :, None], np.abs(known), 0.0).max(axis=(1, 2))   # (S,)
+    reach = np.where(roots.used[sets][:, :, None], np.abs(known), 0.0).max(axis=(1, 2), initial=0.0)
     stretched = np.broadcast_to(coarse, grid.shape) * reach[:, None, None]
     wide = np.broadcast_to((reach > WIDEN * s.max(axis=1))[:, None], grid.shape[:2])
 
