@@ -135,10 +135,10 @@ def test_three_species_competition_against_linear_algebra(tmp_path):
     # reference library: numpy.linalg.solve. For x_i' = x_i (1 - sum_j a_ij x_j) every
     # steady state has a support S with (A_SS x_S = 1, x_S > 0); enumerating the 8
     # supports gives them all (up to 8, many of them saddles on coordinate faces).
-    # Measured completeness on such rich cases is about 99.4 %, not 100 % (a few face
-    # saddles next to a transcritical crossing are missed): this check pins it down
-    # and that nothing spurious is reported. The 97 % floor is our own bar (common
-    # practice, no source).
+    # Completeness on such rich cases is measured at about 99 %, not 100 % (297 of these
+    # 300 sets; a few face saddles next to a transcritical crossing are missed): this
+    # check pins that down, and that nothing spurious is reported. The 97 % floor is
+    # our own bar (common practice, no source).
     model = compiled(tmp_path, LOTKA_VOLTERRA_3)
     params = random_params(model, 300, 0.3, 2.0, seed=2)
     found = solve(model, params)

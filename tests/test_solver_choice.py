@@ -38,9 +38,11 @@ COMPETITION = """
 """
 
 
-def test_auto_takes_homotopy_for_rational_models_and_newton_otherwise(tmp_path):
+def test_auto_runs_newton_and_homotopy_is_refused_for_non_rational_models(tmp_path):
     rational = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver=""), "a.toml"))
-    assert choose_method(rational, compile_model(rational)) == "homotopy"
+    assert choose_method(rational, compile_model(rational)) == "newton"
+    forced = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver='method = "homotopy"'), "d.toml"))
+    assert choose_method(forced, compile_model(forced)) == "homotopy"
     transcendental = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver="").replace(
         'x = "x*(r1 - x - a12*y)"', 'x = "x*(r1 - exp(x) - a12*y)"'), "b.toml"))
     assert choose_method(transcendental, compile_model(transcendental)) == "newton"

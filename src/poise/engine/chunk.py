@@ -81,7 +81,7 @@ def _real_zero_eigenvalue(classes: Classification, jacobians: np.ndarray) -> np.
     """Steady states with a real eigenvalue that is zero within the classifier's tolerance."""
     if jacobians.shape[1] == 0:
         return np.zeros(jacobians.shape[0], bool)
-    with np.errstate(invalid="ignore"):
+    with np.errstate(invalid="ignore", over="ignore"):
         tol = 1e-8 * np.maximum(1.0, np.linalg.norm(jacobians, axis=(1, 2)))
         zero = (np.abs(classes.eigenvalues.real) <= tol[:, None]) & (np.abs(classes.eigenvalues.imag) <= tol[:, None])
     return zero.any(axis=1)
