@@ -244,7 +244,10 @@ def _from_sbml(path: Path, model: dict, where: _Where, warnings: list[str]):
     file = model["sbml"]
     if not isinstance(file, str):
         raise where.error("model", "sbml", "expected the SBML file's path as a string")
-    from poise.sbml import read_sbml  # libsbml is optional; import only when asked
+    try:
+        from poise.sbml import read_sbml  # imported only when a study asks for SBML
+    except ImportError:
+        raise where.error("model", "sbml", "reading SBML needs python-libsbml: pip install python-libsbml") from None
     imported = read_sbml(path.parent / file)
     warnings.extend(imported.warnings)
     extra = {"initial": dict(imported.initial), "units": dict(imported.units),
