@@ -91,10 +91,19 @@ def _read_json(path: Path) -> dict:
                          file=str(path)) from None
 
 
-def _read_parquet(path: Path) -> pd.DataFrame:
+# The report draws steady states only on the trace-determinant or eigenvalue plane, so
+# only these columns are read: memory then stays small for runs with millions of rows.
+EQUILIBRIA_COLUMNS = ("sample_id", "label", "class", "stability", "trace", "determinant", "eig_re_0", "eig_im_0")
+
+
+def _read_parquet(path: Path, columns=None) -> pd.DataFrame:
     if not path.exists():
         return pd.DataFrame()
-    return pd.read_parquet(path)
+    if columns is not None:
+        import pyarrow.parquet as pq
+        present = set(pq.read_schema(path).names)
+        columns = [c for c in columns if c in present]
+    return pd.read_parquet(path, columns=columns)
 
 
 def load_run(run_dir: str | Path) -> RunData:
@@ -122,6 +131,6 @@ def load_run(run_dir: str | Path) -> RunData:
         manifest=_read_json(run_dir / "manifest.json"),
         summary=_read_json(run_dir / "summary.json"),
         samples=_read_parquet(run_dir / "samples.parquet"),
-        equilibria=_read_parquet(run_dir / "equilibria.parquet"),
+        equilibria=_read_parquet(run_dir / "equilibria.parquet", EQUILIBRIA_COLUMNS),
         outcomes=_read_parquet(run_dir / "outcomes.parquet"),
     )
