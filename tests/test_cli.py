@@ -160,3 +160,39 @@ def test_hostile_expressions_through_the_command(tmp_path, expression):
     assert "Traceback" not in proc.stderr
     assert "[model.ode]" in proc.stderr
     assert not marker.exists()
+
+
+def test_fixed_values_that_make_the_model_complex_or_undefined_are_refused(tmp_path):
+    # log(-2) = log 2 + iπ and K = 0 in r x (1 - x/K) are not real rates (elementary algebra).
+    complex_model = write_study(tmp_path, """
+        [model]
+        states = ["x"]
+        [model.ode]
+        x = "r - x*log(c)"
+        [parameters]
+        r = { dist = "uniform", low = 0.5, high = 1.5 }
+        c = -2
+    """, "complex.toml")
+    status, _, err = run_cli("check", str(complex_model))
+    assert status == 2 and "[model.ode]" in err and "'x'" in err and "c" in err
+    zero_capacity = write_study(tmp_path, GOOD.replace('K = { dist = "uniform", low = 2, high = 10 }', "K = 0"), "zero.toml")
+    status, _, err = run_cli("check", str(zero_capacity))
+    assert status == 2 and "Traceback" not in err and "[model.ode]" in err
+    status, _, err = run_cli("inspect", str(write_study(tmp_path, GOOD, "good.toml")), "--at", "K=0")
+    assert status == 2 and "Traceback" not in err
+
+
+@pytest.mark.parametrize("name", ["independent", "status", "sample_id", "n_stable"])
+def test_claim_names_that_collide_with_table_columns_are_refused(tmp_path, name):
+    path = write_study(tmp_path, GOOD + f'\n[[claims]]\nname = "{name}"\nholds = "any(stable)"\n')
+    status, _, err = run_cli("check", str(path))
+    assert status == 2 and "[claims[1]]" in err and "name" in err
+
+
+def test_out_that_is_a_file_and_absurd_size_exit_2(tmp_path):
+    path = write_study(tmp_path, GOOD)
+    afile = tmp_path / "afile"
+    afile.write_text("x")
+    status, _, err = run_cli("run", str(path), "--out", str(afile), "--quiet")
+    assert status == 2 and "Traceback" not in err
+    assert run_cli("run", str(path), "--size", "2000000000")[0] == 2

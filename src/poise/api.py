@@ -195,6 +195,8 @@ def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: i
         "resamples": study.sensitivity.resamples, "n_sets": n_sets, "chunk_size": chunk_size,
         "chunks": {}, "complete": False, "versions": _versions(),
     }
+    if directory.exists() and not directory.is_dir():
+        raise InputError("--out names a file, not a directory", file=str(directory))
     existing = read_manifest(directory)
     if existing is None:
         if resume:
@@ -246,6 +248,10 @@ def run_from_cli(args) -> int:
         return 130
     print(main_table_text(result.directory))
     print(f"\nrun directory: {result.directory}  (report.html, summary.json, tables/, figures/)")
+    if result.summary["samples"]["analysed"] == 0:
+        print("poise: no parameter set could be analysed; samples.parquet gives each set's reason",
+              file=sys.stderr)
+        return 1
     return 0
 
 

@@ -121,9 +121,10 @@ def _warn(warnings) -> None:
 
 
 def _positive_int(text: str) -> int:
+    from poise.study.loader import MAX_SIZE
     value = _non_negative_int(text)
-    if value < 1:
-        raise argparse.ArgumentTypeError("expected a whole number of at least 1")
+    if not 1 <= value <= MAX_SIZE:
+        raise argparse.ArgumentTypeError(f"expected a whole number from 1 to {MAX_SIZE}")
     return value
 
 

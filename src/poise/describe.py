@@ -59,8 +59,8 @@ def describe_text(study: Study, description: dict) -> str:
     lines += ["", f"solver      {choose_method(study, model)}",
               f"design      {study.sampling.design}, N = {study.sampling.size}, seed {study.sampling.seed}",
               f"sets        {parameter_sets(study)}"
-              + (f"  (N x (k + 2) for Sobol indices, k = {len(study.uncertain)})"
-                 if parameter_sets(study) != study.sampling.size else "")]
+              + (f"  (N x ({'2k' if study.sensitivity.second_order else 'k'} + 2) for Sobol indices, "
+                 f"k = {len(study.uncertain)})" if parameter_sets(study) != study.sampling.size else "")]
     if study.claims:
         lines += ["", "claims"]
         for claim in study.claims:

@@ -51,11 +51,28 @@ def compile_model(study: Study, values: Mapping[str, float] | None = None,
     values = dict(study.nominal_values() if values is None else values)
     fixed_values = {k: float(v) for k, v in values.items() if k not in varying}
     system = reduce(study, fixed_values, varying)
+    _check_real(study, system)
     kernels = compile_kernels(system)
     low = np.array([study.domain[s][0] for s in study.states])
     high = np.array([study.domain[s][1] for s in study.states])
     return CompiledModel(system=system, kernels=kernels, varying=varying,
                          fixed_values=fixed_values, domain_low=low, domain_high=high)
+
+
+def _check_real(study: Study, system: ReducedSystem) -> None:
+    """With fixed values substituted, an equation may turn complex or undefined (log of a
+    negative number, division by a zero constant): refuse it rather than compute nonsense."""
+    import sympy
+
+    from poise.errors import InputError
+    bad = (sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
+    for state, expr in zip(system.free, system.rhs):
+        if expr.has(*bad) or expr.has(sympy.I):
+            fixed = ", ".join(sorted(str(s) for s in study.ode[state].free_symbols
+                                     if str(s) in study.parameters and str(s) not in system.parameters))
+            raise InputError(f"with the fixed parameter values ({fixed}) this equation is complex or undefined "
+                             "(e.g. the log of a negative number or a division by zero); change those values",
+                             file=str(study.path), table="model.ode", key=state)
 
 
 __all__ = ["CompiledModel", "Kernels", "ReducedSystem", "check_conservation", "compile_model"]

@@ -96,10 +96,18 @@ def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray
             values = function(*X.T, *P.T)
         out = np.empty((batch, count))
         for j, value in enumerate(values):
-            out[:, j] = value
+            out[:, j] = _real(value)
         return out
 
     return kernel
+
+
+def _real(value):
+    """A complex value (log or power of a negative number) is no real rate: NaN, so the
+    set is recorded as failed instead of silently losing the imaginary part."""
+    if np.iscomplexobj(value):
+        value = np.where(np.imag(value) == 0, np.real(value), np.nan)
+    return value
 
 
 def _row_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
@@ -118,7 +126,7 @@ def _row_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
         with np.errstate(all="ignore"):
             values = function(*XR, *PR)
             for j, value in enumerate(values):
-                out[j] = value
+                out[j] = _real(value)
         return out
 
     return kernel

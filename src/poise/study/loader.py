@@ -28,6 +28,7 @@ MODEL_KEYS = {"states", "ode", "let", "domain", "conserved", "sbml"}
 RESERVED = set(FUNCTIONS) | set(STEADY_FLAGS) | set(STEADY_NUMBERS) | {
     "any", "all", "none", "count", "inf", "nan", "pi"}
 NAME_PATTERN = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+RESERVED_COLUMNS = {"sample_id", "block", "independent", "status", "reason", "n_steady", "n_stable"}
 DESIGNS = ("sobol", "lhs", "random")
 SOLVER_METHODS = ("auto", "newton", "homotopy")
 MAX_SIZE = 2**24
@@ -296,6 +297,8 @@ def _claims(data: dict, states, parameters, where: _Where):
         name, holds = claim.get("name"), claim.get("holds")
         if not isinstance(name, str) or not name.strip():
             raise where.error(table, "name", "expected a non-empty string")
+        if name in RESERVED_COLUMNS:
+            raise where.error(table, "name", f"'{name}' names a column of the run's tables; choose another claim name")
         if name in seen:
             raise where.error(table, "name", f"another claim is already called '{name}'")
         seen.add(name)
