@@ -251,3 +251,24 @@ def test_an_isolated_fold_is_not_a_continuum(tmp_path):
     assert equilibria[0]["state"]["x"] == pytest.approx(0.0, abs=1e-6)
     assert equilibria[0]["class"] == "non-hyperbolic"
     assert not equilibria[0]["continuum"]
+
+
+def test_a_model_that_vanishes_everywhere_reports_a_continuum(tmp_path):
+    # closed form: x' = r x (y - 1), y' = r y (x - 2) has the isolated steady states (0, 0)
+    # and (2, 1) for r != 0, and every point is a steady state for r = 0.
+    text = """
+        [model]
+        states = ["x", "y"]
+        [model.ode]
+        x = "r*x*(y - 1)"
+        y = "r*y*(x - 2)"
+        [parameters]
+        r = 1.0
+        [solver]
+        method = "newton"
+    """
+    isolated = steady_states(tmp_path, text)
+    assert {(eq["state"]["x"], eq["state"]["y"]) for eq in isolated} == {(0.0, 0.0), (2.0, 1.0)}
+    assert not any(eq["continuum"] for eq in isolated)
+    everywhere = steady_states(tmp_path, text, r=0.0)
+    assert everywhere and all(eq["continuum"] for eq in everywhere)

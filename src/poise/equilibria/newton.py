@@ -218,6 +218,12 @@ def _newton_step(fj, x, s, deflation):
     max_i |d_i| / (|x_i| + s_i)."""
     n = x.shape[0]
     d = solve_rows(fj[n:], fj[:n])                             # J d = f
+    if n:
+        # A singular J gives no step; where f is exactly zero the start already sits on
+        # a steady state (e.g. on a continuum), so it has converged, not failed.
+        stuck = ~np.isfinite(d[0])
+        if stuck.any():
+            d[:, stuck & (fj[:n] == 0).all(axis=0)] = 0.0
     attracted = None
     if deflation is not None:
         slope, attracted = _deflation_slope(x, s, d, deflation)
