@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from poise.equilibria.finder import (CORRECTION_TOLERANCE, RESIDUAL_TOLERANCE, ZERO_TOLERANCE, FoundStates,
-                                     find_steady_states)
+from poise.equilibria.finder import (CORRECTION_TOLERANCE, RESIDUAL_TOLERANCE, FoundStates,
+                                     find_steady_states, in_domain, sorted_states, state_scales)
 from poise.equilibria.homotopy import solve_batch as track
 from poise.equilibria.linalg import solve_batch
 from poise.equilibria.polynomial import PolynomialSystem
@@ -35,8 +35,7 @@ def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndar
         f, jac = kernels.rhs_and_jacobian(x, p)
         d, ok = solve_batch(jac, f)
         x = np.where(ok[:, None], x - d, x)
-    bound = np.abs(kernels.scales(params))
-    scale = np.where(np.isfinite(bound) & (bound > 0), bound, np.maximum(1.0, magnitude)[:, None])
+    scale = state_scales(kernels, params, magnitude)
     f, jac = kernels.rhs_and_jacobian(x, p)
     d, solved = solve_batch(jac, f)
     with np.errstate(invalid="ignore"):
@@ -45,12 +44,7 @@ def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndar
     good = np.isfinite(x).all(axis=1) & (small_residual | small_correction)
     owner, x = owner[good], x[good]
 
-    full = kernels.full_states(x, params[owner])
-    full_scale = scale[owner].max(axis=1, initial=1.0)[:, None]
-    full = np.where(np.abs(full) <= ZERO_TOLERANCE * full_scale, 0.0, full)
-    inside = ((full >= domain_low - ZERO_TOLERANCE * full_scale)
-              & (full <= domain_high + ZERO_TOLERANCE * full_scale)).all(axis=1)
-    owner, full = owner[inside], full[inside]
+    owner, full = in_domain(kernels, params, scale, domain_low, domain_high, owner, x)
     ok = result.status != 2
     reason = np.where(ok, "", np.char.add("the model cannot be evaluated at this parameter set: ",
                                           result.message.astype(str))).astype(object)
@@ -65,7 +59,4 @@ def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndar
         full = np.concatenate([full, again.full])
         ok[retry], reason[retry] = again.ok, again.reason
 
-    order = np.lexsort(tuple(full[:, j] for j in reversed(range(full.shape[1]))) + (owner,))
-    free = full[:, np.asarray(kernels.free_columns, dtype=int)]
-    return FoundStates(owner=owner[order], free=free[order], full=full[order], ok=ok,
-                       reason=reason)
+    return sorted_states(kernels, owner, full, ok, reason)

@@ -149,7 +149,7 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
         evaluated at any start has ok False and a reason.
     """
     batch, n = params.shape[0], kernels.n
-    scale = _scales(kernels, params, magnitude)                            # (B, n)
+    scale = state_scales(kernels, params, magnitude)                            # (B, n)
     free_columns = np.asarray(kernels.free_columns, dtype=int)
     free_low, free_high = domain_low[free_columns], domain_high[free_columns]
     if n == 0:      # every state fixed by conserved totals: one candidate per set
@@ -184,19 +184,28 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
 
 def _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable) -> FoundStates:
     """Full states, snapped to zero and filtered to the domain, sorted; set status."""
-    free_columns = np.asarray(kernels.free_columns, dtype=int)
-    full = kernels.full_states(root_x, params[root_owner])
-    full_scale = _full_scale(full, root_owner, scale)
+    root_owner, full = in_domain(kernels, params, scale, domain_low, domain_high, root_owner, root_x)
+    reason = np.where(evaluable, "", "the model cannot be evaluated at this parameter set (overflow or division by zero)")
+    return sorted_states(kernels, root_owner, full, evaluable, reason.astype(object))
+
+
+def in_domain(kernels, params, scale, domain_low, domain_high, owner, x):
+    """Full states of roots `x` (free states) of sets `owner`, with values within
+    ZERO_TOLERANCE of zero (relative to the set's scale) made exactly zero, keeping
+    only those inside the domain. Returns (owner, full)."""
+    full = kernels.full_states(x, params[owner])
+    full_scale = _full_scale(full, owner, scale)
     full = np.where(np.abs(full) <= ZERO_TOLERANCE * full_scale, 0.0, full)
     inside = ((full >= domain_low - ZERO_TOLERANCE * full_scale)
               & (full <= domain_high + ZERO_TOLERANCE * full_scale)).all(axis=1)
-    root_owner, full = root_owner[inside], full[inside]
-    root_x = full[:, free_columns]
+    return owner[inside], full[inside]
 
-    order = np.lexsort(tuple(full[:, j] for j in reversed(range(full.shape[1]))) + (root_owner,))
-    reason = np.where(evaluable, "", "the model cannot be evaluated at this parameter set (overflow or division by zero)")
-    return FoundStates(owner=root_owner[order], free=root_x[order], full=full[order],
-                       ok=evaluable, reason=reason.astype(object))
+
+def sorted_states(kernels, owner, full, ok, reason) -> FoundStates:
+    """FoundStates ordered by set, then by state values."""
+    order = np.lexsort(tuple(full[:, j] for j in reversed(range(full.shape[1]))) + (owner,))
+    free = full[:, np.asarray(kernels.free_columns, dtype=int)]
+    return FoundStates(owner=owner[order], free=free[order], full=full[order], ok=ok, reason=reason)
 
 
 class _Roots:
@@ -363,7 +372,9 @@ def _slow_directions(kernels, params, known, used, sets, unit, every_axis=False)
     return out, slowness
 
 
-def _scales(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
+def state_scales(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
+    """A typical size per set and free state: a model bound where known, else the
+    parameters' magnitude."""
     bound = np.abs(kernels.scales(params))
     fallback = np.maximum(1.0, magnitude)[:, None]
     return np.where(np.isfinite(bound) & (bound > 0), bound, fallback)
