@@ -1,6 +1,14 @@
 """Homotopy continuation vs multistart Newton: throughput and completeness.
 
-Two models with several steady states:
+Part 1, the bundled studies in `configs/` (parameter sets drawn from each study's own
+distributions): poise's batched Newton (`find_steady_states`, the study defaults) and
+poise's homotopy (`find_by_homotopy` with the 64 hubs a run uses), side by side. The
+truth is the closed form from `bench_throughput.py` (reef, toggle switch, phosphorylation
+cycle); the SBML enzyme reactor has none, so there the two methods are compared with each
+other. Rates are the best of ``--repeat`` runs after a warm-up (compilation, start solve
+and hubs are paid once per process and reported separately as "set-up").
+
+Part 2, two synthetic models with many steady states:
 
 * toggle switch, Hill exponent 3: u' = a1/(1 + v^3) - u, v' = a2/(1 + u^3) - v
   (steady states with u, v >= 0 count);
@@ -16,7 +24,8 @@ from random starts per set; and poise's batched Newton with deflation
 
 Usage::
 
-    PYTHONPATH=src python benchmarks/bench_homotopy.py [--sets 300] [--starts 30] [--seed 0]
+    PYTHONPATH=src python benchmarks/bench_homotopy.py [--sets 4000] [--loop-sets 300]
+        [--starts 30] [--seed 0] [--repeat 3]
 """
 
 from __future__ import annotations
@@ -30,8 +39,16 @@ import numpy as np
 import sympy
 from scipy.optimize import root
 
+from poise.equilibria.choice import polynomial_system
+from poise.equilibria.continuation import find_by_homotopy, hub_parameters
+from poise.equilibria.finder import find_steady_states
 from poise.equilibria.homotopy import generic_root_count, solve_batch
 from poise.equilibria.polynomial import polynomial_form
+from poise.model import compile_model
+from poise.sampling import make_design, map_to_parameters
+from poise.study.loader import load_study
+
+from bench_throughput import CONFIGS, STUDIES, all_values, score
 
 u, v, x, y = sympy.symbols("u v x y", real=True)
 a1, a2, c = sympy.symbols("a1 a2 c", real=True)
@@ -115,16 +132,16 @@ def _complete(found: np.ndarray, expected: np.ndarray) -> bool:
     return bool((gap.min(axis=0) <= 1e-6 * (1 + np.abs(expected).max(axis=1))).all())
 
 
-def _run_homotopy(case: Case, params: np.ndarray, seed: int):
+def _run_homotopy(case: Case, params: np.ndarray, seed: int, repeat: int):
     system = polynomial_form(case.rhs, case.states, case.params)
+    hubs = case.sample(np.random.default_rng([seed, 64]), 64)  # 64 hubs, as a run uses
     t0 = time.perf_counter()
-    paths = generic_root_count(system, seed=seed)
+    solve_batch(system, params[:8], seed=seed, hubs=hubs)
     setup = time.perf_counter() - t0
-    t0 = time.perf_counter()
-    result = solve_batch(system, params, seed=seed)
-    elapsed = time.perf_counter() - t0
+    result, elapsed = _best_time(lambda: solve_batch(system, params, seed=seed, hubs=hubs), repeat)
     found = [result.roots[i, :result.count[i]] for i in range(len(params))]
-    note = f"{paths} paths/set, start solve {setup:.2f} s, status!=0: {(result.status != 0).sum()}"
+    note = (f"{generic_root_count(system, seed=seed)} paths/set from 64 hubs, set-up {setup:.2f} s, "
+            f"status!=0: {(result.status != 0).sum()}")
     return found, elapsed, note
 
 
@@ -152,7 +169,7 @@ def _run_scipy(case: Case, params: np.ndarray, starts: int, seed: int):
     return found, elapsed, f"{starts} starts/set in [{low}, {high}]^n, method hybr"
 
 
-def _run_poise_newton(case: Case, params: np.ndarray):
+def _run_poise_newton(case: Case, params: np.ndarray, repeat: int):
     try:
         from poise.equilibria.finder import find_steady_states
         from poise.model.kernels import compile_kernels
@@ -166,43 +183,102 @@ def _run_poise_newton(case: Case, params: np.ndarray):
                             domain={s: (low, np.inf) for s in names},
                             scales={s: None for s in names})
     kernels = compile_kernels(reduced)
-    t0 = time.perf_counter()
-    states = find_steady_states(kernels, params, np.abs(params).max(axis=1),
-                                np.full(len(names), low), np.full(len(names), np.inf))
-    elapsed = time.perf_counter() - t0
+    box = (np.full(len(names), low), np.full(len(names), np.inf))
+    find_steady_states(kernels, params[:8], np.abs(params[:8]).max(axis=1), *box)
+    states, elapsed = _best_time(lambda: find_steady_states(kernels, params, np.abs(params).max(axis=1), *box),
+                                 repeat)
     found = [states.free[states.owner == i] for i in range(len(params))]
     return found, elapsed, "find_steady_states defaults"
 
 
+
+# ------------------------------------------------------------------ bundled studies
+
+BUNDLED = ("reef_grazing", "toggle_switch", "phospho_cycle", "sbml_enzyme/study")
+
+
+def _best_time(run: Callable[[], object], repeat: int) -> tuple[object, float]:
+    best, result = np.inf, None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        result = run()
+        best = min(best, time.perf_counter() - t0)
+    return result, best
+
+
+def _per_set(found, batch: int) -> list[np.ndarray]:
+    bounds = np.searchsorted(found.owner, np.arange(batch + 1))
+    return [found.full[bounds[i]:bounds[i + 1]] for i in range(batch)]
+
+
+def bundled(sets: int, seed: int, repeat: int) -> None:
+    print(f"bundled studies: {sets} parameter sets each, best of {repeat}")
+    print(f"{'study':<16}{'method':<10}{'sets/s':>10}{'complete':>10}{'vs Newton':>11}  notes")
+    for name in BUNDLED:
+        study = load_study(CONFIGS / f"{name}.toml")
+        model = compile_model(study)
+        system = polynomial_system(model)
+        design = make_design(tuple(study.uncertain), "random", sets, seed=seed, sobol_indices=False)
+        params = map_to_parameters(design, study.uncertain)
+        magnitude = model.magnitude(params)
+        box = (model.domain_low, model.domain_high)
+        hubs = hub_parameters(study.uncertain, model.varying)
+        t0 = time.perf_counter()
+        find_by_homotopy(model.kernels, system, params[:8], magnitude[:8], *box, hubs=hubs)
+        setup = time.perf_counter() - t0
+        find_steady_states(model.kernels, params[:8], magnitude[:8], *box)
+        newton, t_newton = _best_time(lambda: find_steady_states(model.kernels, params, magnitude, *box), repeat)
+        homotopy, t_hom = _best_time(lambda: find_by_homotopy(model.kernels, system, params, magnitude, *box,
+                                                              hubs=hubs), repeat)
+        by_newton, by_homotopy = _per_set(newton, sets), _per_set(homotopy, sets)
+        label = name.split("/")[0]
+        if label in STUDIES:
+            truth = STUDIES[label](all_values(study, model, params))
+            complete = [score(by_newton, truth)[0], score(by_homotopy, truth)[0]]
+            reference = "closed form"
+        else:  # no closed form: each method against the other
+            complete = [score(by_newton, by_homotopy)[0], score(by_homotopy, by_newton)[0]]
+            reference = "the other method"
+        print(f"{label:<16}{'Newton':<10}{sets / t_newton:>10.0f}{100 * complete[0]:>9.2f}%{1.0:>11.2f}"
+              f"  complete vs {reference}")
+        print(f"{'':<16}{'homotopy':<10}{sets / t_hom:>10.0f}{100 * complete[1]:>9.2f}%{t_newton / t_hom:>11.2f}"
+              f"  {generic_root_count(system)} paths/set, set-up {setup:.2f} s")
+    print()
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sets", type=int, default=300)
+    parser.add_argument("--sets", type=int, default=4000, help="sets for poise's methods")
+    parser.add_argument("--loop-sets", type=int, default=300, help="sets for the scipy loop")
     parser.add_argument("--starts", type=int, default=30)
     parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
+    bundled(args.sets, args.seed, args.repeat)
 
     for case in _cases():
         rng = np.random.default_rng(args.seed)
         params = case.sample(rng, args.sets)
         expected = [_in_domain(case.reference(p), case.nonnegative) for p in params]
-        runs = {
-            "homotopy": _run_homotopy(case, params, args.seed),
-            "scipy root multistart": _run_scipy(case, params, args.starts, args.seed),
-            "poise batched Newton": _run_poise_newton(case, params),
+        loop = slice(0, min(args.loop_sets, args.sets))
+        runs = {  # name: (found, seconds, note, number of sets)
+            "poise batched Newton": (*_run_poise_newton(case, params, args.repeat), args.sets),
+            "homotopy": (*_run_homotopy(case, params, args.seed, args.repeat), args.sets),
+            "scipy root multistart": (*_run_scipy(case, params[loop], args.starts, args.seed),
+                                      loop.stop),
         }
-        base = runs["homotopy"]
-        base_rate = args.sets / base[1]
-        print(f"\n{case.name}: {args.sets} parameter sets, "
+        newton_rate = args.sets / runs["poise batched Newton"][1]
+        print(f"\n{case.name}: {args.sets} parameter sets ({loop.stop} for the scipy loop), "
               f"{np.mean([len(e) for e in expected]):.2f} steady states per set on average")
-        print(f"{'method':<24}{'sets/s':>10}{'complete':>10}{'homotopy/this':>16}  notes")
-        for name, (found, elapsed, note) in runs.items():
+        print(f"{'method':<24}{'sets/s':>10}{'complete':>10}{'vs Newton':>11}  notes")
+        for name, (found, elapsed, note, count) in runs.items():
             if found is None:
-                print(f"{name:<24}{'-':>10}{'-':>10}{'-':>16}  {note}")
+                print(f"{name:<24}{'-':>10}{'-':>10}{'-':>11}  {note}")
                 continue
-            rate = args.sets / elapsed
+            rate = count / elapsed
             complete = np.mean([_complete(_in_domain(f, case.nonnegative), e)
-                                for f, e in zip(found, expected)])
-            print(f"{name:<24}{rate:>10.1f}{100 * complete:>9.1f}%{base_rate / rate:>16.2f}  {note}")
+                                for f, e in zip(found, expected[:count])])
+            print(f"{name:<24}{rate:>10.1f}{100 * complete:>9.2f}%{rate / newton_rate:>11.2f}  {note}")
 
 
 if __name__ == "__main__":

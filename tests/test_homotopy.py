@@ -80,7 +80,8 @@ def _resultant_coefficients(f1, f2, eliminate, keep):
     return sympy.lambdify([a1, a2, c], res.all_coeffs(), "numpy")
 
 
-def test_coupled_cubics_match_sympy_resultants_at_500_points():
+@pytest.mark.parametrize("with_hubs", [False, True])
+def test_coupled_cubics_match_sympy_resultants_at_500_points(with_hubs):
     f1 = a1 * x - x**3 + c * y
     f2 = a2 * y - y**3 + c * x
     system = polynomial_form([f1, f2], [x, y], [a1, a2, c])
@@ -91,7 +92,7 @@ def test_coupled_cubics_match_sympy_resultants_at_500_points():
     size = 500
     coupling = rng.uniform(0.02, 0.6, size) * rng.choice([-1.0, 1.0], size)
     params = np.column_stack([rng.uniform(0.2, 2.0, size), rng.uniform(0.2, 2.0, size), coupling])
-    result = solve_batch(system, params)
+    result = solve_batch(system, params, hubs=params[:64][::-1] * 1.01 if with_hubs else None)
     assert (result.status == 0).all()
     checked = 0
     for i, p in enumerate(params):
@@ -143,15 +144,17 @@ def test_general_quadratic_pair_matches_sympy_resultant():
 # ----------------------------------------------------------- Hill-type toggle switch
 
 
+@pytest.mark.parametrize("with_hubs", [False, True])
 @pytest.mark.parametrize("hill, size", [(2, 200), (3, 300)])
-def test_toggle_switch_matches_eliminated_polynomial(hill, size):
+def test_toggle_switch_matches_eliminated_polynomial(hill, size, with_hubs):
     # u' = a1/(1 + v^h) - u, v' = a2/(1 + u^h) - v. Eliminating v = a2/(1 + u^h) and
     # clearing denominators gives a1 (1+u^h)^h - u ((1+u^h)^h + a2^h) = 0 (degree h^2+1).
     system = polynomial_form([a1 / (1 + v**hill) - u, a2 / (1 + u**hill) - v], [u, v], [a1, a2])
     assert system is not None
     rng = np.random.default_rng(hill)
     params = rng.uniform(0.5, 5.0, size=(size, 2))
-    result = solve_batch(system, params)
+    hubs = rng.uniform(0.5, 5.0, size=(64, 2)) if with_hubs else None
+    result = solve_batch(system, params, hubs=hubs)
     assert (result.status == 0).all()
     P = np.polynomial.Polynomial
     checked = 0
@@ -183,6 +186,35 @@ def test_toggle_switch_at_extreme_parameter_scales():
         got = _found(result, i)
         assert len(got) == len(us), (av1, av2)
         np.testing.assert_allclose(got[:, 0], us, rtol=1e-6, atol=1e-12)
+
+
+def test_grazing_model_with_hubs_matches_closed_form_including_a_huge_root():
+    # kelp k' = r k (1 - k/K) - g k u/(h + k), urchins u' = e g k u/(h + k) - m u.
+    # Analytic roots of the cleared system (easily re-derived by hand): (0, 0), (K, 0),
+    # and k* = h m/(e g - m), u* = r (1 - k*/K)(h + k*)/g; k = -h is a pole, discarded.
+    # The last set puts e g within 1e-4 of m, so k* ~ 1e4 h, u* ~ 1e8: a huge root beside small
+    # ones (the duplicate merge must not swallow (0, 0) and (K, 0)).
+    r, K, g, h, e, m, k = sympy.symbols("r K g h e m k", real=True)
+    system = polynomial_form([r * k * (1 - k / K) - g * k * u / (h + k), e * g * k * u / (h + k) - m * u],
+                             [k, u], [r, K, g, h, e, m])
+    rng = np.random.default_rng(21)
+
+    def draw(size):
+        return np.column_stack([rng.uniform(0.5, 2, size), rng.uniform(2, 10, size), rng.uniform(0.2, 1, size),
+                                rng.uniform(0.5, 3, size), rng.uniform(0.1, 0.5, size), rng.uniform(0.02, 0.3, size)])
+
+    params = draw(300)
+    params[-1, 4:] = [0.2, 0.2 * params[-1, 2] / (1 + 1e-4)]
+    result = solve_batch(system, params, hubs=draw(64))
+    assert (result.status == 0).all()
+    for i, (rv, Kv, gv, hv, ev, mv) in enumerate(params):
+        ks = hv * mv / (ev * gv - mv)
+        expected = [(0.0, 0.0), (Kv, 0.0), (ks, rv * (1 - ks / Kv) * (hv + ks) / gv)]
+        expected = np.array(sorted(expected))
+        got = _found(result, i)
+        assert len(got) == 3, params[i]
+        np.testing.assert_allclose(got, expected, rtol=1e-7, atol=1e-9)
+    assert np.abs(_found(result, len(params) - 1)).max() > 1e7
 
 
 # ----------------------------------------------------------------------------- Lorenz
@@ -327,14 +359,16 @@ def test_failed_paths_are_reported(monkeypatch):
 # --------------------------------------------------------------------- determinism
 
 
-def test_results_are_reproducible_and_independent_of_the_batch():
+@pytest.mark.parametrize("with_hubs", [False, True])
+def test_results_are_reproducible_and_independent_of_the_batch(with_hubs):
     # design requirement (same seed => same results, whatever the chunking)
     system = polynomial_form([a1 / (1 + v**3) - u, a2 / (1 + u**3) - v], [u, v], [a1, a2])
     params = np.random.default_rng(4).uniform(0.5, 5.0, size=(40, 2))
-    whole = solve_batch(system, params, seed=3)
-    again = solve_batch(system, params, seed=3)
+    hubs = np.random.default_rng(5).uniform(0.5, 5.0, size=(16, 2)) if with_hubs else None
+    whole = solve_batch(system, params, seed=3, hubs=hubs)
+    again = solve_batch(system, params, seed=3, hubs=hubs)
     np.testing.assert_array_equal(whole.roots, again.roots)
-    part = solve_batch(system, params[10:17], seed=3)
+    part = solve_batch(system, params[10:17], seed=3, hubs=hubs)
     width = part.roots.shape[1]
     np.testing.assert_array_equal(part.roots, whole.roots[10:17, :width])
     assert np.isnan(whole.roots[10:17, width:]).all()

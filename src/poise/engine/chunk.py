@@ -48,9 +48,10 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
                            max_iterations=settings.max_iterations)
     if solver_method == "homotopy":
         from poise.equilibria.choice import polynomial_system
-        from poise.equilibria.continuation import find_by_homotopy
+        from poise.equilibria.continuation import find_by_homotopy, hub_parameters
         found = find_by_homotopy(model.kernels, polynomial_system(model), params, model.magnitude(params),
-                                 model.domain_low, model.domain_high, **newton_settings)
+                                 model.domain_low, model.domain_high,
+                                 hubs=hub_parameters(study.uncertain, model.varying), **newton_settings)
     else:
         found = find_steady_states(model.kernels, params, model.magnitude(params),
                                    model.domain_low, model.domain_high, **newton_settings)

@@ -1,12 +1,12 @@
 """Which steady-state finder a study uses.
 
 Homotopy continuation finds every isolated root of a polynomial system with
-probability one; batched multistart Newton with deflation is, since its tuning, some
-twenty to forty times faster on the bundled models and found every steady state on
-every benchmark set (benchmarks/bench_throughput.py, bench_homotopy.py). So "auto"
-runs Newton, and every Newton run re-solves a random subsample by homotopy (where
-the model qualifies) to report how often a steady state was missed. "homotopy" asks
-for continuation on every set.
+probability one. Its speed relative to batched multistart Newton depends on the model
+(benchmarks/bench_homotopy.py: 0.2x to 8x on the bundled studies), and no cheap,
+reproducible test tells in advance which is faster: a choice by timing could differ
+between two runs of one study. So "auto" runs Newton, and every Newton run re-solves
+a random subsample by homotopy (where the model qualifies) to report how often a
+steady state was missed. "homotopy" asks for continuation on every set.
 """
 
 from __future__ import annotations

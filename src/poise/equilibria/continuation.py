@@ -10,6 +10,8 @@ a set.
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
+
 import numpy as np
 
 from poise.equilibria.finder import (CORRECTION_TOLERANCE, RESIDUAL_TOLERANCE, FoundStates,
@@ -18,16 +20,34 @@ from poise.equilibria.homotopy import solve_batch as track
 from poise.equilibria.linalg import solve_batch
 from poise.equilibria.polynomial import PolynomialSystem
 from poise.model.kernels import Kernels
+from poise.sampling import make_design, map_to_parameters
+from poise.sampling.distributions import Distribution
 
 SEED = 0   # fixed: the start system must not depend on the chunk
+HUB_SEED = 1
+HUB_COUNT = 64  # more hubs shorten paths a little more but cost a longer set-up
+
+
+def hub_parameters(distributions: Mapping[str, Distribution], names: Sequence[str],
+                   count: int = HUB_COUNT) -> np.ndarray | None:
+    """``count`` parameter sets spread over the study's distributions (a scrambled Sobol
+    design with a fixed seed), from which the homotopy starts its paths; None when a
+    name has no distribution (then every path starts at the generic start system)."""
+    names = tuple(names)
+    if any(name not in distributions for name in names):
+        return None
+    design = make_design(names, "sobol", count, seed=HUB_SEED, sobol_indices=False)
+    return map_to_parameters(design, distributions)
 
 
 def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndarray,
                      magnitude: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray,
-                     **newton_settings) -> FoundStates:
-    """Every real steady state in the domain for each parameter set (see module doc)."""
-    batch = params.shape[0]
-    result = track(system, params, seed=SEED)
+                     hubs: np.ndarray | None = None, **newton_settings) -> FoundStates:
+    """Every real steady state in the domain for each parameter set (see module doc).
+
+    ``hubs`` (see `hub_parameters`) shorten the paths; results depend on them and on
+    each set's own values only, never on the rest of the batch."""
+    result = track(system, params, seed=SEED, hubs=hubs)
     owner, slot = np.nonzero(np.isfinite(result.roots).all(axis=2))
     x = result.roots[owner, slot]
     p = params[owner]

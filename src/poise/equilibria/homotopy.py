@@ -11,11 +11,17 @@ Morgan & Sommese 1989, "Coefficient-parameter polynomial continuation"):
    term is added to every equation that lacks one, so that these roots are all simple
    (Li & Wang 1996). This runs twice with different ``gamma`` and the nonsingular finite
    endpoints are merged.
-2. **Coefficient-parameter homotopy, per parameter set.** The roots of ``F_c*`` are
-   tracked along ``H(x, s) = F(x; c_target + s (c* - c_target))`` from ``s = 1`` to
-   ``s = 0``; by the coefficient-parameter theorem every isolated root of the target is
-   the end of one of these paths. All paths of all parameter sets advance together in one
-   predictor-corrector loop with a step size per path.
+2. **Hubs, once per study.** Given hub parameter sets (a small design over the study's
+   distributions), the roots of ``F_c*`` are tracked to each hub's own coefficients
+   plus a little relative complex noise, which makes every hub a generic member of the
+   family (all its roots finite and simple, with probability one). Hubs where that
+   fails are dropped.
+3. **Coefficient-parameter homotopy, per parameter set.** The roots at the start (the
+   hub nearest in normalised coefficient space, else ``c*``) are tracked along
+   ``H(x, s) = F(x; c_target + s (c_start - c_target))`` from ``s = 1`` to ``s = 0``;
+   by the coefficient-parameter theorem every isolated root of the target is the end of
+   one of these paths. A near hub makes the path short: a few steps instead of dozens.
+   Paths are tracked by the compiled loop in `poise.equilibria.tracker`, each on its own.
 
    The straight path runs in *coefficient* space rather than parameter space: the
    coefficients are then linear in ``s`` (exact and cheap ``dH/ds``), coefficient functions
@@ -31,15 +37,14 @@ Details:
   ``x = X[1:] / X_0``, on a random affine chart ``a . X = 1``; a path going to infinity
   stays bounded and ends with ``X_0 -> 0``. Endpoints with ``|X_0| <= 1e-10 |X|`` count as
   "at infinity" (so roots more than about 1e10 times the scale of the patch are lost).
-* **Predictor-corrector.** Fourth-order Runge-Kutta on ``dX/ds = -H_X^-1 H_s``, then up
-  to three Newton corrections; a step is accepted when Newton converges and the first
-  correction is small (a guard against jumping to a neighbouring path). The first
-  correction also estimates the predictor's local error (order ``step**5``) and sets the
-  next step. The predictor's first stage reuses the velocity from the last corrector
-  iteration (one factorisation serves both).
+* **Predictor-corrector.** See `poise.equilibria.tracker`: Runge-Kutta predictor, Newton
+  corrector, corrections measured in units of each coordinate's typical size at the
+  hubs (so a scarce species is not drowned by an abundant one).
 * **Path jumping.** Two paths of one parameter set ending at the same well-conditioned
   root means one of them jumped; both are tracked again with smaller maximum steps and a
   stricter acceptance test (twice at most). Failed paths are re-tracked the same way.
+  From a hub, more paths ending at infinity than on the way from that hub to its own
+  real system also marks a jump: those paths are tracked again too.
 * **Singular endpoints.** No Cauchy or power-series endgame: a path heading for a
   multiple root (or a multiple point at infinity) cannot land on ``s = 0``; its steps
   shrink geometrically until they collapse (typically near ``s ~ 1e-11``), where it is
@@ -57,6 +62,7 @@ Details:
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import product
@@ -64,6 +70,7 @@ from itertools import product
 import numpy as np
 import sympy
 
+from poise.equilibria import tracker
 from poise.equilibria.polynomial import PolynomialSystem
 
 # Paths advanced together; larger batches of parameter sets are cut into chunks of this
@@ -102,7 +109,7 @@ class HomotopyResult:
 
 
 def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
-                seed: int = 0) -> HomotopyResult:
+                seed: int = 0, hubs: np.ndarray | None = None) -> HomotopyResult:
     """Real isolated roots of a polynomial system for each row of ``param_values``.
 
     Parameters
@@ -114,6 +121,12 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     seed : int
         Seeds the random start system, chart and gamma. Same seed, same results,
         whatever the batch size or the other rows of the batch.
+    hubs : array_like, shape (H, m), optional
+        Parameter sets spread over the region the targets come from (e.g. a small
+        design over the study's distributions). Each is solved once from the generic
+        start; every target is then tracked from the hub nearest to it in coefficient
+        space, a path several times shorter (see `_hub_start`). Results depend on the
+        hubs given, never on the other rows of the batch.
 
     Returns
     -------
@@ -130,6 +143,10 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     n = len(system.states)
     batch = values.shape[0]
     start = _start(system, seed)
+    hub_start = None
+    if hubs is not None:
+        hubs = np.ascontiguousarray(hubs, dtype=float).reshape(-1, m)
+        hub_start = _hub_start(system, seed, hubs.tobytes(), hubs.shape[0])
     per_chunk = max(1, _PATHS_PER_CHUNK // max(1, len(start.roots)))
 
     found: list[np.ndarray] = []
@@ -139,7 +156,7 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     for lo in range(0, batch, per_chunk):
         hi = min(batch, lo + per_chunk)
         roots, counts[lo:hi], status[lo:hi], message[lo:hi] = _solve_chunk(
-            _compile(system), start, values[lo:hi])
+            _compile(system), start, values[lo:hi], hub_start)
         found.append(roots)
 
     width = max((r.shape[1] for r in found), default=0)
@@ -181,18 +198,16 @@ class _Table:
         object.__setattr__(self, "degree", int(self.exponents.max(initial=0)))
         object.__setattr__(self, "kernels", {})
 
-    def kernel(self, jacobian: bool, with_s: bool):
-        key = (jacobian, with_s)
-        if key not in self.kernels:
-            self.kernels[key] = self._build(jacobian, with_s)
-        return self.kernels[key]
+    def kernel(self, jacobian: bool):
+        if jacobian not in self.kernels:
+            self.kernels[jacobian] = self._build(jacobian)
+        return self.kernels[jacobian]
 
-    def _build(self, jacobian: bool, with_s: bool):
+    def _build(self, jacobian: bool):
         q, K, nv = self.exponents.shape
         powers = [[sympy.Integer(1)] + [sympy.Symbol(f"p{j}_{e}") for e in range(1, self.degree + 1)]
                   for j in range(nv)]
         coef = [[sympy.Symbol(f"c{i}_{k}") for k in range(K)] for i in range(q)]
-        dcoef = [[sympy.Symbol(f"d{i}_{k}") for k in range(K)] for i in range(q)]
 
         def monomial(e):
             return sympy.Mul(*[powers[j][int(e[j])] for j in range(nv)])
@@ -212,22 +227,22 @@ class _Table:
                             lowered[j] -= 1
                             terms.append(int(e[j]) * coef[i][k] * monomial(lowered))
                     out.append(sympy.Add(*terms))
-        if with_s:
-            for i in range(q):
-                out.append(sympy.Add(*[dcoef[i][k] * monomial(self.exponents[i, k])
-                                       for k in range(K) if self.live[i, k]]))
-        args = ([p for row in powers for p in row[1:]] + [c for row in coef for c in row]
-                + ([c for row in dcoef for c in row] if with_s else []))
+        args = [p for row in powers for p in row[1:]] + [c for row in coef for c in row]
         return sympy.lambdify(args, out, modules="numpy", cse=True)
 
+    def arrays(self):
+        """Exponents and live mask in the layout the compiled tracker takes."""
+        return np.ascontiguousarray(self.exponents, dtype=np.int64), np.ascontiguousarray(self.live)
 
-def _evaluate_t(table: _Table, XT: np.ndarray, CT: np.ndarray, dCT: np.ndarray | None = None,
-                jacobian: bool = True):
-    """Polynomials ``sum_k C_ik X^E_ik`` with the path axis last.
 
-    XT (n+1, M), CT and dCT (q, K, M) -> values (q, M), Jacobian (q, n+1, M) or None,
-    ``sum_k dC_ik X^E_ik`` (q, M) or None.
+def _evaluate(table: _Table, X: np.ndarray, C: np.ndarray, jacobian: bool = True):
+    """Values (M, q) and Jacobian (M, q, n+1) of ``sum_k C_ik X^E_ik``; X (M, n+1), C (M, q, K).
+
+    Numpy kernels for the real polishing and bounds, which see one point per candidate
+    root; path tracking runs in `poise.equilibria.tracker`.
     """
+    XT = np.ascontiguousarray(X.T)
+    CT = np.ascontiguousarray(np.moveaxis(C, 0, -1))
     nv, M = XT.shape
     q, K = table.live.shape
     dtype = np.result_type(XT, CT)
@@ -237,33 +252,19 @@ def _evaluate_t(table: _Table, XT: np.ndarray, CT: np.ndarray, dCT: np.ndarray |
         for _ in range(table.degree):
             acc = XT[j] if acc is None else acc * XT[j]
             powers.append(acc)
-    args = powers + [CT[i, k] for i in range(q) for k in range(K)]
-    if dCT is not None:
-        args += [dCT[i, k] for i in range(q) for k in range(K)]
-    got = table.kernel(jacobian, dCT is not None)(*args)
+    got = table.kernel(jacobian)(*powers, *[CT[i, k] for i in range(q) for k in range(K)])
     values = np.empty((q, M), dtype=dtype)
     for i in range(q):
         values[i] = got[i]
-    jac = hs = None
+    if not jacobian:
+        return values.T, None
+    jac = np.empty((q, nv, M), dtype=dtype)
     pos = q
-    if jacobian:
-        jac = np.empty((q, nv, M), dtype=dtype)
-        for i in range(q):
-            for j in range(nv):
-                jac[i, j] = got[pos]
-                pos += 1
-    if dCT is not None:
-        hs = np.empty((q, M), dtype=dtype)
-        for i in range(q):
-            hs[i] = got[pos + i]
-    return values, jac, hs
-
-
-def _evaluate(table: _Table, X: np.ndarray, C: np.ndarray, jacobian: bool = True):
-    """Values (M, q) and Jacobian (M, q, n+1) of ``sum_k C_ik X^E_ik``; X (M, n+1), C (M, q, K)."""
-    values, jac, _ = _evaluate_t(table, np.ascontiguousarray(X.T),
-                                 np.ascontiguousarray(np.moveaxis(C, 0, -1)), None, jacobian)
-    return values.T, None if jac is None else np.moveaxis(jac, -1, 0)
+    for i in range(q):
+        for j in range(nv):
+            jac[i, j] = got[pos]
+            pos += 1
+    return values.T, np.moveaxis(jac, -1, 0)
 
 
 def _solve(A: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -298,53 +299,23 @@ class _Homotopy:
     chart: np.ndarray  # (n+1,) complex
     C0: np.ndarray     # (G, q, K) complex, coefficients at s = 0
     dC: np.ndarray     # (G, q, K) complex, dC/ds
-    C0t: np.ndarray = field(init=False)  # (q, K, G) copies for the path-last kernel
-    dCt: np.ndarray = field(init=False)
+    # typical size of each coordinate: step acceptance measures corrections in units of
+    # it, so a small coordinate (a scarce species) is not drowned by a large one
+    weight: np.ndarray | None = None
 
-    def __post_init__(self):
-        object.__setattr__(self, "C0t", np.ascontiguousarray(np.moveaxis(self.C0, 0, -1)))
-        object.__setattr__(self, "dCt", np.ascontiguousarray(np.moveaxis(self.dC, 0, -1)))
-
-    def system(self, X, s, group, with_s=False):
-        """H (M, n+1), its Jacobian (M, n+1, n+1) and optionally dH/ds (M, n+1)."""
-        dC = self.dCt[..., group]
-        C = self.C0t[..., group] + s * dC
-        values, jac, hs = _evaluate_t(self.table, np.ascontiguousarray(X.T), C,
-                                      dC if with_s else None)
-        M, nv = X.shape
-        H = np.empty((M, nv), dtype=complex)
-        H[:, :-1] = values.T
-        H[:, -1] = (X * self.chart).sum(axis=-1) - 1.0
-        J = np.empty((M, nv, nv), dtype=complex)
-        J[:, :-1] = np.moveaxis(jac, -1, 0)
-        J[:, -1] = self.chart
-        if not with_s:
-            return H, J
-        Hs = np.zeros((M, nv), dtype=complex)
-        Hs[:, :-1] = hs.T
-        return H, J, Hs
-
-    def velocity(self, X, s, group):
-        _, J, Hs = self.system(X, s, group, with_s=True)
-        return _solve(J, -Hs)
-
-    def newton(self, X, s, group):
-        H, J = self.system(X, s, group)
-        return _solve(J, -H)
-
-    def newton_velocity(self, X, s, group):
-        """Newton step and dX/ds from one evaluation and one factorisation."""
-        H, J, Hs = self.system(X, s, group, with_s=True)
-        both = _solve(J, -np.stack([H, Hs], axis=-1))
-        return both[..., 0], both[..., 1]
+    def arrays(self):
+        exps, live = self.table.arrays()
+        return (exps, live, np.ascontiguousarray(self.chart, dtype=complex),
+                np.ascontiguousarray(self.C0, dtype=complex), np.ascontiguousarray(self.dC, dtype=complex))
 
 
 @dataclass(frozen=True)
 class _Settings:
-    h_init: float = 0.1
-    h_max: float = 0.2
+    h_init: float = 1.0         # a whole path in one step when the predictor allows it
+    h_max: float = 1.0
     beta: float = 1e-3          # largest first Newton correction accepted, relative to |X|
-    tol: float = 1e-9           # corrector convergence, relative to |X|
+    tol: float = 1e-9           # corrector convergence, relative to |X| (1e-7 lost roots
+                                # of a toggle switch with states from 1e-14 to 1e7)
     newton_steps: int = 3
     max_iterations: int = 3000
     s_stop: float = 1e-11       # a step ending below this lands at s = 0
@@ -354,8 +325,7 @@ _NORMAL = _Settings()
 _RETRACK = (_Settings(h_init=0.01, h_max=0.02, beta=1e-5),
             _Settings(h_init=0.002, h_max=0.005, beta=1e-7))
 
-# path states
-_ACTIVE, _DONE, _FAILED, _STALLED = 0, 1, 2, 3
+_DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
 
 def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
@@ -365,110 +335,32 @@ def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
     a singular endpoint) or ``_FAILED`` (steps collapsed, or out of iterations, far from
     s = 0).
     """
-    N = X.shape[0]
-    X = X.copy()
-    s = np.ones(N)
-    h = np.full(N, cfg.h_init)
-    velocity = np.full_like(X, np.nan)
-    state = np.zeros(N, dtype=np.int8)
-    with np.errstate(all="ignore"):
-        for _ in range(cfg.max_iterations):
-            act = np.flatnonzero(state == _ACTIVE)
-            if act.size == 0:
-                break
-            x, sa, g = X[act], s[act], group[act]
-            step = np.minimum(h[act], sa)
-            s_new = sa - step
-            s_new[s_new <= cfg.s_stop] = 0.0  # land exactly (also absorbs rounding of s)
-            ds = s_new - sa
-            # Runge-Kutta predictor on the Davidenko equation dX/ds = -H_X^-1 H_s;
-            # the first stage is the velocity kept from the last corrector step
-            k1 = velocity[act]
-            fresh = np.flatnonzero(~np.isfinite(k1).all(axis=1))
-            if fresh.size:
-                k1[fresh] = hom.velocity(x[fresh], sa[fresh], g[fresh])
-            k2 = hom.velocity(x + 0.5 * ds[:, None] * k1, sa + 0.5 * ds, g)
-            k3 = hom.velocity(x + 0.5 * ds[:, None] * k2, sa + 0.5 * ds, g)
-            k4 = hom.velocity(x + ds[:, None] * k3, s_new, g)
-            x = x + ds[:, None] / 6.0 * (k1 + 2 * k2 + 2 * k3 + k4)
-            # Newton corrector at s_new; paths leave the loop once converged
-            first = np.full(act.size, np.inf)
-            last = np.full(act.size, np.inf)
-            todo = np.arange(act.size)
-            v_new = np.full_like(x, np.nan)
-            for it in range(cfg.newton_steps):
-                dx, v_new[todo] = hom.newton_velocity(x[todo], s_new[todo], g[todo])
-                x[todo] += dx
-                last[todo] = _norm(dx) / _norm(x[todo])
-                if it == 0:
-                    first[:] = last
-                todo = todo[~(last[todo] <= cfg.tol) & (last[todo] <= cfg.beta)]
-                if todo.size == 0:
-                    break
-            ok = np.isfinite(x).all(axis=1) & (last <= cfg.tol) & (first <= cfg.beta)
-
-            # next step from the first correction, a proxy for the predictor's local error
-            # (RK4: error ~ step**5)
-            with np.errstate(divide="ignore"):
-                factor = 0.8 * (cfg.beta / first) ** 0.2
-            good = act[ok]
-            X[good] = x[ok]
-            velocity[good] = v_new[ok]  # at the last Newton iterate: O(tol) from X
-            s[good] = s_new[ok]
-            h[good] = np.minimum(cfg.h_max, h[good] * np.clip(factor[ok], 0.5, 2.0))
-            state[good[s[good] == 0.0]] = _DONE
-
-            bad = act[~ok]
-            h[bad] *= np.clip(np.nan_to_num(factor[~ok], nan=0.5), 0.1, 0.5)
-            tiny = bad[h[bad] < 1e-14 + 1e-9 * s[bad]]
-            state[tiny] = np.where(s[tiny] < 1e-4, _STALLED, _FAILED)
-    left = state == _ACTIVE
-    state[left] = np.where(s[left] < 1e-4, _STALLED, _FAILED)
-    return X, state
+    end, state, _, _ = tracker.track_paths(
+        *hom.arrays(), np.ascontiguousarray(group, dtype=np.int64),
+        np.ascontiguousarray(X, dtype=complex),
+        np.ones(X.shape[1]) if hom.weight is None else np.ascontiguousarray(hom.weight, dtype=float),
+        cfg.h_init, cfg.h_max, cfg.beta, cfg.tol,
+        cfg.newton_steps, cfg.max_iterations, cfg.s_stop)
+    return end, state
 
 
 def _refine(hom: _Homotopy, X: np.ndarray, group: np.ndarray, iterations: np.ndarray):
-    """Newton on the target system (s = 0) in homogeneous coordinates.
-
-    Each path stops on its own (converged, or its iteration budget spent), so a path's
-    result does not depend on the other paths in the batch.
-    """
-    X = X.copy()
-    todo = np.flatnonzero(iterations > 0)
-    with np.errstate(all="ignore"):
-        for it in range(int(iterations.max(initial=0))):
-            if todo.size == 0:
-                break
-            dx = hom.newton(X[todo], np.zeros(todo.size), group[todo])
-            finite = np.isfinite(dx).all(axis=1)
-            X[todo[finite]] += dx[finite]
-            moving = finite & (_norm(dx) > 1e-15 * _norm(X[todo]))
-            todo = todo[moving & (iterations[todo] > it + 1)]
-    return X
+    """Newton on the target system (s = 0) in homogeneous coordinates, each path on its
+    own; returns the points and their condition numbers (row-scaled, 1-norm)."""
+    return tracker.refine_paths(*hom.arrays(), np.ascontiguousarray(group, dtype=np.int64),
+                                np.ascontiguousarray(X, dtype=complex),
+                                np.ascontiguousarray(iterations, dtype=np.int64))
 
 
-def _condition(table: _Table, X: np.ndarray, C: np.ndarray, chart=None) -> np.ndarray:
-    """Condition number of the Jacobian, each row scaled by the size its entries can have.
-
-    The row scale is a bound from the coefficients and ``|X|``, not the row's current
-    length: at a multiple root a whole row of the Jacobian can vanish, and scaling it to
-    unit length would hide exactly that. ``chart`` given: homogeneous coordinates with
-    the chart row appended; else affine points with ``X_0 = 1``.
-    """
+def _condition(table: _Table, X: np.ndarray, C: np.ndarray) -> np.ndarray:
+    """Condition number of the Jacobian at affine points (``X_0 = 1``), each row scaled
+    by the size its entries can have (a bound from the coefficients and ``|x|``, not the
+    row's current length, which vanishes at a multiple root)."""
     with np.errstate(all="ignore"):
         _, J = _evaluate(table, X, C)
-        if chart is None:
-            J = J[..., 1:]
-            bound = _term_bound(table, X, C, jacobian=True)[1].max(axis=-1)
-        else:
-            degree = table.exponents.sum(axis=-1)                            # (q, K)
-            radius = np.abs(X).max(axis=1)
-            bound = (np.abs(C) * degree * radius[:, None, None] ** np.maximum(degree - 1, 0)
-                     ).sum(axis=-1)
+        J = J[..., 1:]
+        bound = _term_bound(table, X, C, jacobian=True)[1].max(axis=-1)
         J = J / np.where(bound > 0, bound, 1.0)[..., None]
-        if chart is not None:
-            J = np.concatenate([J, np.broadcast_to(chart / np.abs(chart).max(),
-                                                   (X.shape[0], 1, X.shape[1]))], axis=1)
         ok = np.isfinite(J).all(axis=(1, 2))
         J = np.where(ok[:, None, None], J, 0.0)
         sv = np.linalg.svd(J, compute_uv=False)
@@ -476,23 +368,30 @@ def _condition(table: _Table, X: np.ndarray, C: np.ndarray, chart=None) -> np.nd
     return np.where(ok & np.isfinite(cond), cond, np.inf)
 
 
-def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int):
+def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
+               expected_infinite: np.ndarray | None = None):
     """Track, refine, and re-track failed or jumping paths with tighter settings.
 
     Paths are group-major: ``per_group`` consecutive paths belong to one group.
+    ``expected_infinite`` (per group): how many paths end at infinity at the hub the
+    group starts from. A group with more has probably had a path jump onto a path that
+    diverges (a lost root, invisible to the duplicate test); its infinite paths are
+    tracked again with the first tighter setting.
     Returns endpoints, states, condition numbers and a flag for unresolved jumps.
     """
     end, state = _track(hom, X, group, _NORMAL)
-    end = _finish(hom, end, state, group)
-    cond = _condition(hom.table, end, hom.C0[group], hom.chart)
-    for cfg in _RETRACK:
+    end, cond = _finish(hom, end, state, group)
+    for round_, cfg in enumerate(_RETRACK):
         redo = (state == _FAILED) | _duplicates(end, state, cond, per_group)
+        if expected_infinite is not None and round_ == 0:
+            infinite = ~_finite(end)
+            extra = np.bincount(group[infinite], minlength=len(expected_infinite)) > expected_infinite
+            redo |= infinite & extra[group]
         if not redo.any():
             break
         e, st = _track(hom, X[redo], group[redo], cfg)
-        end[redo] = _finish(hom, e, st, group[redo])
+        end[redo], cond[redo] = _finish(hom, e, st, group[redo])
         state[redo] = st
-        cond[redo] = _condition(hom.table, end[redo], hom.C0[group[redo]], hom.chart)
     return end, state, cond, _duplicates(end, state, cond, per_group)
 
 
@@ -502,44 +401,20 @@ def _finish(hom, end, state, group):
     return _refine(hom, end, group, budget)
 
 
+def _finite(end: np.ndarray) -> np.ndarray:
+    """Endpoints not at infinity: ``|X_0| > _INFINITY |X|``."""
+    return np.abs(end[:, 0]) > _INFINITY * _norm(end)
+
+
 def _duplicates(end, state, cond, per_group: int) -> np.ndarray:
     """Paths ending on the same well-conditioned finite point as another path of their group.
 
     Several paths may legitimately end at one point at infinity or at a multiple root;
     at a finite nonsingular root, only one can.
     """
-    finite = np.abs(end[:, 0]) > _INFINITY * _norm(end)
-    clean = (state == _DONE) & finite & (cond < _SINGULAR / 100)
-    points = np.where(clean[:, None], end, np.nan)
-    group = np.arange(len(end)) // max(per_group, 1)
-    return _near_pairs(points, group, 1e-7)[0]
-
-
-def _near_pairs(points: np.ndarray, group: np.ndarray, rel: float, window: int = 4):
-    """Which points have another point of their group within ``rel * |point|``.
-
-    Returns (any, later): a close partner exists / a close partner with a smaller index
-    exists. Points are sorted by group and a fixed projection and compared with their
-    next ``window`` neighbours, O(N log N) instead of all pairs; NaN points never match.
-    """
-    N, d = points.shape
-    close_any = np.zeros(N, dtype=bool)
-    close_later = np.zeros(N, dtype=bool)
-    if N < 2:
-        return close_any, close_later
-    weights = np.linspace(1.0, 2.0, d) * np.exp(0.5j)
-    key = (points * weights).sum(axis=1).real
-    order = np.lexsort((key, group))
-    size = _norm(points)
-    for offset in range(1, min(window, N - 1) + 1):
-        i, j = order[:-offset], order[offset:]
-        with np.errstate(invalid="ignore"):
-            near = (group[i] == group[j]) & (
-                _norm(points[i] - points[j]) <= rel * np.maximum(size[i], size[j]))
-        close_any[i[near]] = True
-        close_any[j[near]] = True
-        close_later[np.maximum(i[near], j[near])] = True
-    return close_any, close_later
+    clean = (state == _DONE) & _finite(end) & (cond < _SINGULAR / 100)
+    points = np.ascontiguousarray(np.where(clean[:, None], end, np.nan), dtype=complex)
+    return tracker.near_pairs(points, max(per_group, 1), 1e-7)[0]
 
 
 # ------------------------------------------------------------------ compiled system
@@ -684,27 +559,111 @@ def _start(system: PolynomialSystem, seed: int) -> _Start:
         hom = _Homotopy(table, chart, target[None], (gamma * start_coef - target)[None])
         group = np.zeros(len(X), dtype=int)
         end, state, cond, jumped = _track_all(hom, X, group, per_group=len(X))
-        finite = np.abs(end[:, 0]) > _INFINITY * _norm(end)
+        finite = _finite(end)
         keep = (state == _DONE) & finite & (cond < _SINGULAR)
         found.append(end[keep])
         lost.append(bool((state == _FAILED).any() or jumped.any()))
     roots = _unique_points(np.concatenate(found))
     # re-express on the system's own table (same chart) and polish
     hom = _Homotopy(comp.table, chart, cstar[None], np.zeros((1,) + cstar.shape))
-    roots = _refine(hom, roots, np.zeros(len(roots), dtype=int), np.full(len(roots), 4))
+    roots, _ = _refine(hom, roots, np.zeros(len(roots), dtype=int), np.full(len(roots), 4))
     return _Start(chart, cstar, roots, incomplete=all(lost))
 
 
 def _unique_points(points: np.ndarray, rel: float = 1e-7) -> np.ndarray:
     """Drop later copies of (numerically) equal points."""
-    _, later = _near_pairs(points, np.zeros(len(points), dtype=int), rel)
+    points = np.ascontiguousarray(points, dtype=complex)
+    _, later = tracker.near_pairs(points, max(len(points), 1), rel)
     return points[~later]
+
+
+# ------------------------------------------------------------------------- hubs
+
+# Hub start coefficients: the hub's own (normalised) coefficients plus this much random
+# complex noise. The noise makes each hub a generic member of the family (all roots
+# finite and simple, with probability one), so the straight path from a hub to a real
+# target meets no singularity before s = 0 with probability one (Morgan & Sommese 1989),
+# however close the hub is; it is kept small so that hubs stay close to the targets.
+_HUB_NOISE = 0.1
+
+
+@dataclass(frozen=True, eq=False)
+class _Hubs:
+    coefficients: np.ndarray  # (H, q, K) complex: start coefficients of each hub
+    anchor: np.ndarray        # (H, q*K) real: the hub's normalised coefficients
+    roots: np.ndarray         # (H, R, n+1): every root at the start coefficients
+    weight: np.ndarray        # (n+1,) typical size of each coordinate at the hubs' roots
+    infinite: np.ndarray      # (H,) paths that diverge from the hub to its own real system
+
+
+@lru_cache(maxsize=8)
+def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -> _Hubs:
+    """Every root of each hub's start system, tracked from the generic start.
+
+    Hubs whose coefficients cannot be evaluated, or where a path failed, jumped or ended
+    singular or at infinity (not the full generic root count), are dropped: a target
+    then uses another hub, or the generic start when none is left.
+    """
+    comp, start = _compile(system), _start(system, seed)
+    params = np.frombuffer(values, dtype=float).reshape(count, -1)
+    q, K = comp.table.live.shape
+    R, nv = start.roots.shape
+    empty = _Hubs(np.zeros((0, q, K), complex), np.zeros((0, q * K)), np.zeros((0, R, nv), complex),
+                  np.ones(nv), np.zeros(0, dtype=int))
+    coef = comp.coefficients(params)
+    with np.errstate(all="ignore"):
+        usable = np.isfinite(coef).all(axis=(1, 2)) & ~(coef == 0).all(axis=2).any(axis=1)
+        anchor = coef[usable] / np.abs(coef[usable]).max(axis=2, keepdims=True)
+    if R == 0 or not len(anchor):
+        return empty
+    rng = np.random.default_rng([seed, 1989])
+    noise = np.where(comp.table.live, _complex_normal(rng, (len(anchor), q, K)), 0)
+    # relative noise keeps each coefficient's own scale (small coefficients set where
+    # small roots are); coefficients that are zero at the hub get noise the size of the
+    # equation's smallest nonzero one
+    size = np.abs(anchor)
+    smallest = np.where(size > 0, size, np.inf).min(axis=2, keepdims=True)
+    hub_coef = anchor + _HUB_NOISE * noise * np.where(size > 0, size, smallest)
+    hom = _Homotopy(comp.table, start.chart, hub_coef, start.cstar[None] - hub_coef)
+    group = np.repeat(np.arange(len(anchor)), R)
+    end, state, cond, jumped = _track_all(hom, np.tile(start.roots, (len(anchor), 1)), group, R)
+    finite = _finite(end)
+    good = (state == _DONE) & finite & (cond < _SINGULAR) & ~jumped
+    whole = good.reshape(-1, R).all(axis=1)
+    roots = end.reshape(-1, R, nv)[whole]
+    hub_coef, anchor = hub_coef[whole], anchor[whole]
+    weight = _typical_size(roots.reshape(-1, nv))
+    # how many paths diverge on the way from each hub to its own (real) system: targets
+    # near the hub should lose no more than that many to infinity
+    own = _Homotopy(comp.table, start.chart, anchor.astype(complex), hub_coef - anchor, weight)
+    group = np.repeat(np.arange(len(anchor)), R)
+    own_end, _, _, _ = _track_all(own, roots.reshape(-1, nv), group, R)
+    infinite = np.bincount(group[~_finite(own_end)], minlength=len(anchor))
+    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(-1, q * K), roots=roots,
+                 weight=weight, infinite=infinite)
+
+
+def _typical_size(points: np.ndarray) -> np.ndarray:
+    """Geometric mean of each coordinate's modulus, floored at 1e-8 of the largest."""
+    if not len(points):
+        return np.ones(points.shape[1])
+    with np.errstate(divide="ignore"):
+        logs = np.log(np.maximum(np.abs(points), 1e-300))
+    size = np.exp(logs.mean(axis=0))
+    return np.maximum(size, 1e-8 * size.max())
+
+
+def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
+    """Index of the nearest anchor (Euclidean) for each point; ties go to the first."""
+    gap = ((points ** 2).sum(axis=1)[:, None] - 2 * points @ anchors.T
+           + (anchors ** 2).sum(axis=1)[None, :])
+    return np.argmin(gap, axis=1)
 
 
 # ------------------------------------------------------------------- target solve
 
 
-def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray):
+def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs | None):
     """Roots (b, R, n), counts, status and messages for one chunk of parameter sets."""
     b, n = values.shape[0], comp.n
     status = np.zeros(b, dtype=int)
@@ -733,10 +692,17 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray):
     target = coef[sets]
     target = target / np.abs(target).max(axis=2, keepdims=True)
     C0 = target.astype(complex)
-    hom = _Homotopy(comp.table, start.chart, C0, start.cstar[None] - C0)
     group = np.repeat(np.arange(sets.size), R)
-    X = np.tile(start.roots, (sets.size, 1))
-    end, state, cond, jumped = _track_all(hom, X, group, per_group=R)
+    if hubs is not None and len(hubs.roots):
+        near = _nearest(target.reshape(sets.size, -1), hubs.anchor)
+        hom = _Homotopy(comp.table, start.chart, C0, hubs.coefficients[near] - C0, hubs.weight)
+        X = hubs.roots[near].reshape(sets.size * R, -1)
+        expected = hubs.infinite[near]
+    else:
+        expected = None
+        hom = _Homotopy(comp.table, start.chart, C0, start.cstar[None] - C0)
+        X = np.tile(start.roots, (sets.size, 1))
+    end, state, cond, jumped = _track_all(hom, X, group, per_group=R, expected_infinite=expected)
 
     failed = np.bincount(group[state == _FAILED], minlength=sets.size)
     jumps = np.bincount(group[jumped], minlength=sets.size)
@@ -749,7 +715,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray):
     # finite endpoints with a small imaginary part are candidate real roots
     usable = (state == _DONE) | (state == _STALLED)
     with np.errstate(all="ignore"):
-        finite = usable & (np.abs(end[:, 0]) > _INFINITY * _norm(end))
+        finite = usable & _finite(end)
         x = end[:, 1:] / end[:, :1]
         singular = cond >= _SINGULAR
         im_tol = np.where(singular, 1e-4, 1e-7) * (1.0 + np.abs(x).max(axis=1))
@@ -847,11 +813,15 @@ def _unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, G: in
     sing = np.zeros((G, width), dtype=bool)
     sing[group, pos] = singular
     # two roots are one when every coordinate agrees to a relative tolerance (loose if
-    # either is singular); the set's largest root sets the floor, so copies of a root
-    # at zero merge whatever units the states have (1e-9 when every root is ~0: a
-    # problem without a length scale, e.g. x**3 = 0)
+    # either is singular); each coordinate's median size over the set's roots sets its
+    # floor, so copies of a root at zero merge whatever units the states have (1e-9
+    # when every root is ~0: a problem without a length scale, e.g. x**3 = 0). The
+    # median, not the largest: one huge root must not merge distinct small ones.
     absolute = np.where(np.isfinite(pts), np.abs(pts), 0.0)
-    floor = np.maximum(absolute.max(axis=(1, 2), initial=0.0), 1e-9)[:, None, None, None]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # sets with no root: all-NaN
+        typical = np.nanmedian(np.abs(pts), axis=1)
+    floor = np.maximum(np.nan_to_num(typical, nan=0.0), 1e-9)[:, None, None, :]
     gap = np.abs(pts[:, :, None, :] - pts[:, None, :, :])
     size = np.maximum(absolute[:, :, None, :], absolute[:, None, :, :]) + floor
     rel = np.where(sing[:, :, None] | sing[:, None, :], 1e-4, 1e-7)[..., None]
