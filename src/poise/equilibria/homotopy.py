@@ -335,13 +335,12 @@ def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
     a singular endpoint) or ``_FAILED`` (steps collapsed, or out of iterations, far from
     s = 0).
     """
-    end, state, _, _ = tracker.track_paths(
+    return tracker.track_paths(
         *hom.arrays(), np.ascontiguousarray(group, dtype=np.int64),
         np.ascontiguousarray(X, dtype=complex),
         np.ones(X.shape[1]) if hom.weight is None else np.ascontiguousarray(hom.weight, dtype=float),
         cfg.h_init, cfg.h_max, cfg.beta, cfg.tol,
         cfg.newton_steps, cfg.max_iterations, cfg.s_stop)
-    return end, state
 
 
 def _refine(hom: _Homotopy, X: np.ndarray, group: np.ndarray, iterations: np.ndarray):

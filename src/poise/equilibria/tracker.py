@@ -164,8 +164,7 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
                 newton_steps, max_steps, s_stop):
     """Track every row of X0 from s = 1 to s = 0.
 
-    Returns endpoints (N, nv), states (N,) int8 (DONE / FAILED / STALLED), the last
-    ``s`` reached (N,) and the number of evaluations spent (N,).
+    Returns endpoints (N, nv) and states (N,) int8 (DONE / FAILED / STALLED).
     """
     N, nv = X0.shape
     pw = np.empty((nv, exps.max() + 1), dtype=np.complex128)  # powers of each coordinate
@@ -174,8 +173,6 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
 
     out = np.empty((N, nv), dtype=np.complex128)
     state = np.zeros(N, dtype=np.int8)
-    s_last = np.ones(N)
-    evals = np.zeros(N, dtype=np.int64)
     for p in range(N):
         c0 = C0[group[p]]
         dc = dC[group[p]]
@@ -183,12 +180,9 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
             x[j] = X0[p, j]
         s = 1.0
         h = h_init
-        count = 1
         if not _newton_velocity(exps, live, c0, dc, chart, s, x, pw, H, J, Hs, dx, v):
             state[p] = FAILED
             out[p] = x
-            s_last[p] = s
-            evals[p] = count
             continue
         st = ACTIVE
         for _ in range(max_steps):
@@ -207,14 +201,12 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
             for j in range(nv):
                 tmp[j] = x[j] + ds * k3[j]
             _newton_velocity(exps, live, c0, dc, chart, s_new, tmp, pw, H, J, Hs, dx, k4)
-            count += 3
             for j in range(nv):
                 xc[j] = x[j] + ds / 6.0 * (v[j] + 2 * k2[j] + 2 * k3[j] + k4[j])
             first = np.inf
             converged = False
             for it in range(newton_steps):
                 solved = _newton_velocity(exps, live, c0, dc, chart, s_new, xc, pw, H, J, Hs, dx, vc)
-                count += 1
                 if not solved:
                     break
                 for j in range(nv):
@@ -252,9 +244,7 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
             st = STALLED if s < 1e-4 else FAILED
         state[p] = st
         out[p] = x
-        s_last[p] = s
-        evals[p] = count
-    return out, state, s_last, evals
+    return out, state
 
 
 @njit(cache=True)
