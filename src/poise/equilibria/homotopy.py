@@ -313,9 +313,9 @@ class _Homotopy:
 class _Settings:
     h_init: float = 1.0         # a whole path in one step when the predictor allows it
     h_max: float = 1.0
-    beta: float = 1e-3          # largest first Newton correction accepted, relative to |X|
-    tol: float = 1e-9           # corrector convergence, relative to |X| (1e-7 lost roots
-                                # of a toggle switch with states from 1e-14 to 1e7)
+    beta: float = 3e-3          # largest first Newton correction accepted, relative to |X|
+    tol: float = 1e-6           # corrector convergence, relative to |X| in units of each
+                                # coordinate's typical size; end points are refined at s = 0
     newton_steps: int = 3
     max_iterations: int = 3000
     s_stop: float = 1e-11       # a step ending below this lands at s = 0
@@ -329,11 +329,13 @@ _DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
 
 def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
-    """Track every path from s = 1 to s = 0; returns endpoints and path states.
+    """Track every path from s = 1 to s = 0; returns endpoints, path states and cycle
+    numbers.
 
-    A path ends ``_DONE`` (reached s = 0), ``_STALLED`` (steps collapsed close to s = 0:
-    a singular endpoint) or ``_FAILED`` (steps collapsed, or out of iterations, far from
-    s = 0).
+    A path ends ``_DONE`` (reached s = 0, by plain steps or by the endgame, which then
+    reports its cycle number >= 1), ``_STALLED`` (steps collapsed close to s = 0 after
+    the endgame did not settle: a singular endpoint) or ``_FAILED`` (steps collapsed, or
+    out of iterations, far from s = 0).
     """
     return tracker.track_paths(
         *hom.arrays(), np.ascontiguousarray(group, dtype=np.int64),
@@ -378,25 +380,28 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
     tracked again with the first tighter setting.
     Returns endpoints, states, condition numbers and a flag for unresolved jumps.
     """
-    end, state = _track(hom, X, group, _NORMAL)
-    end, cond = _finish(hom, end, state, group)
+    end, state, cycle = _track(hom, X, group, _NORMAL)
+    end, cond = _finish(hom, end, state, cycle, group)
     for round_, cfg in enumerate(_RETRACK):
-        redo = (state == _FAILED) | _duplicates(end, state, cond, per_group)
+        redo = (state == _FAILED) | _duplicates(end, state, cond, cycle, per_group)
         if expected_infinite is not None and round_ == 0:
             infinite = ~_finite(end)
             extra = np.bincount(group[infinite], minlength=len(expected_infinite)) > expected_infinite
             redo |= infinite & extra[group]
         if not redo.any():
             break
-        e, st = _track(hom, X[redo], group[redo], cfg)
-        end[redo], cond[redo] = _finish(hom, e, st, group[redo])
-        state[redo] = st
-    return end, state, cond, _duplicates(end, state, cond, per_group)
+        e, st, cy = _track(hom, X[redo], group[redo], cfg)
+        end[redo], cond[redo] = _finish(hom, e, st, cy, group[redo])
+        state[redo], cycle[redo] = st, cy
+    return end, state, cond, _duplicates(end, state, cond, cycle, per_group)
 
 
-def _finish(hom, end, state, group):
-    """Newton at s = 0: a few steps for clean endpoints, many for stalled (singular) ones."""
-    budget = np.select([state == _DONE, state == _STALLED], [4, 60], 0)
+def _finish(hom, end, state, cycle, group):
+    """Newton at s = 0: a few steps for clean endpoints, many for stalled (singular)
+    ones, none for an endgame's estimate at infinity (Newton has nothing to converge to
+    at a singular point at infinity and could only move it)."""
+    at_infinity = (cycle > 0) & ~_finite(end)
+    budget = np.select([at_infinity, state == _DONE, state == _STALLED], [0, 4, 60], 0)
     return _refine(hom, end, group, budget)
 
 
@@ -405,15 +410,22 @@ def _finite(end: np.ndarray) -> np.ndarray:
     return np.abs(end[:, 0]) > _INFINITY * _norm(end)
 
 
-def _duplicates(end, state, cond, per_group: int) -> np.ndarray:
-    """Paths ending on the same well-conditioned finite point as another path of their group.
+def _duplicates(end, state, cond, cycle, per_group: int) -> np.ndarray:
+    """Paths whose end point shows that some path of their group jumped.
 
-    Several paths may legitimately end at one point at infinity or at a multiple root;
-    at a finite nonsingular root, only one can.
+    At a finite nonsingular root only one path can end. Several may end at a multiple
+    root, but they arrive in loops: paths that the endgame gave cycle number ``c`` come
+    ``c`` at a time (Sommese & Wampler 2005, sec. 10.3), so a count that is not a
+    multiple of ``c`` means a path is missing or extra. (At infinity nothing is checked.)
     """
-    clean = (state == _DONE) & _finite(end) & (cond < _SINGULAR / 100)
+    per_group = max(per_group, 1)
+    finite = _finite(end)
+    clean = (state == _DONE) & finite & (cond < _SINGULAR / 100)
     points = np.ascontiguousarray(np.where(clean[:, None], end, np.nan), dtype=complex)
-    return tracker.near_pairs(points, max(per_group, 1), 1e-7)[0]
+    twice = tracker.near_pairs(points, per_group, 1e-7)[0]
+    looped = (state == _DONE) & finite & (cycle > 1)
+    points = np.ascontiguousarray(np.where(looped[:, None], end, np.nan), dtype=complex)
+    return twice | tracker.broken_cycles(points, cycle, per_group, 1e-6)
 
 
 # ------------------------------------------------------------------ compiled system

@@ -7,26 +7,36 @@ in one compiled loop over small fixed-size buffers, which is some ten times chea
 and a path needs no evaluations for the others. Each path is computed on its own, so
 results do not depend on batch size or order.
 
-Per path (homogeneous coordinates ``X``, chart row ``a . X = 1``, ``s`` from 1 to 0):
+Per path (homogeneous coordinates ``X``, chart row ``a . X = 1``, ``s`` from 1 to 0; a
+step is a straight segment in the complex ``s`` plane, so the same step serves the real
+path and the endgame's circles):
 
-* **Predictor.** Classical Runge-Kutta on the Davidenko equation ``dX/ds = -H_X^-1 H_s``;
-  the first stage is the velocity from the corrector's last factorisation. (A cubic
-  Hermite predictor through the last two points needs no evaluations but forced steps
-  about ten times shorter on these paths, so it cost more.)
+* **Predictor.** Classical Runge-Kutta on the Davidenko equation ``dX/ds = -H_X^-1 H_s``
+  (holomorphic in ``s``); the first stage is the velocity from the corrector's last
+  factorisation. (A cubic Hermite predictor through the last two points needs no
+  evaluations but forced steps about ten times shorter on these paths, so it cost more.)
 * **Corrector.** Newton at the new ``s``; the step is accepted when the first
   correction is at most ``beta |X|`` (so the predictor stayed well inside the path's
   own basin) and a later one at most ``tol |X|``. The first correction sets the next
   step: ``0.8 (beta / first)**(1/5)``, between x0.5 and x2, capped at ``h_max``.
 * **End.** A step that would end below ``s_stop`` lands at ``s = 0``. Steps that keep
   failing shrink until ``h < 1e-14 + 1e-9 s``: the path has *stalled* when that happens
-  near ``s = 0`` (a singular endpoint, handled by the caller's endgame) and *failed*
-  elsewhere.
-* **Endgame.** `cauchy_endgame` takes stalled or singular paths from a point at small
-  ``s`` and tracks them around circles ``s = r exp(i theta)`` until the path closes;
-  the number of turns is the cycle number ``c`` and the mean of the points on the
-  closed loop is the endpoint (Cauchy's integral formula in ``s**(1/c)``; Morgan,
-  Sommese & Wampler 1992, "A power series method for computing singular solutions to
-  nonlinear analytic systems", and Sommese & Wampler 2005, ch. 10).
+  near ``s = 0`` and *failed* elsewhere.
+* **Endgame.** A path taking three steps in a row shorter than ``0.75 s`` once
+  ``s <= 0.01`` is heading for a singular end point (a multiple root, or a singular
+  point at infinity): plain steps would shrink geometrically down to ``s ~ 1e-11``.
+  Instead it is tracked around the circle ``s = r exp(i theta)`` (chords between 8
+  points per turn) until it closes; the number of turns is the cycle number ``c`` and
+  the mean of the points on the closed loop is the end point (Cauchy's integral formula
+  in ``s**(1/c)``: the trapezoid rule on ``c`` turns is exact for the first ``8 c - 1``
+  powers; Morgan, Sommese & Wampler 1992, "A power series method for computing
+  singular solutions to nonlinear analytic systems"; Sommese & Wampler 2005, ch. 10).
+  The estimate is accepted only if it solves the target to rounding level (residual
+  1e-12 of the size its terms can have); otherwise the circle is repeated at radius
+  ``r / 4``. Estimates that merely agree between radii are not trusted: a circle that
+  also encloses another branch point close to ``s = 0`` averages different end points,
+  and does so alike at every radius that encloses it. An endgame that does not settle
+  hands the path back to plain steps.
 """
 
 from __future__ import annotations
@@ -37,15 +47,27 @@ from numba import njit
 # path states (shared with poise.equilibria.homotopy)
 ACTIVE, DONE, FAILED, STALLED = 0, 1, 2, 3
 
+# endgame: starts once s <= _EG_RADIUS after _EG_STREAK steps below _EG_RATIO * s;
+# _EG_SAMPLES points per turn, at most _EG_CYCLE turns per circle (closed when back to
+# within _EG_CLOSE, relative), radius shrinking by _EG_SHRINK for at most _EG_ROUNDS
+# circles; accepted at a relative residual of _EG_RESIDUAL
+_EG_RADIUS, _EG_RATIO, _EG_STREAK, _EG_SAMPLES, _EG_SHRINK = 0.01, 0.75, 3, 8, 0.25
+_EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 5, 1e-6, 1e-12
 
-@njit(cache=True)
-def _system(exps, live, c0, dc, chart, s, x, pw, H, J, Hs):
-    """H, its Jacobian and dH/ds at (x, s) into H, J, Hs (the chart is the last row)."""
+
+@njit(cache=True, inline="always")
+def _system(P, s, x, W, J, want_h):
+    """H (unless not want_h), dH/ds and the Jacobian J at (x, s), into W = (H, Hs, pre,
+    pw) and J; P = (exps, live, c0, dc, chart). The chart is the last row.
+
+    pre (nv,) and the power table pw (nv, max degree + 1) are scratch.
+    """
+    exps, live, c0, dc, chart = P
     q, K, nv = exps.shape
-    deg = pw.shape[1] - 1
+    H, Hs, pre, pw = W
     for j in range(nv):
         pw[j, 0] = 1.0
-        for e in range(1, deg + 1):
+        for e in range(1, pw.shape[1]):
             pw[j, e] = pw[j, e - 1] * x[j]
     for i in range(q):
         h = 0j
@@ -56,22 +78,21 @@ def _system(exps, live, c0, dc, chart, s, x, pw, H, J, Hs):
             if not live[i, k]:
                 continue
             c = c0[i, k] + s * dc[i, k]
-            mono = 1.0 + 0j
+            # prefix products of the monomial's factors; the suffix is built on the way
+            # back, so each partial derivative costs two multiplications
+            acc = 1.0 + 0j
             for j in range(nv):
-                mono *= pw[j, exps[i, k, j]]
-            h += c * mono
-            hs += dc[i, k] * mono
-            for j in range(nv):
+                pre[j] = acc
+                acc *= pw[j, exps[i, k, j]]
+            if want_h:
+                h += c * acc
+            hs += dc[i, k] * acc
+            suffix = c
+            for j in range(nv - 1, -1, -1):
                 e = exps[i, k, j]
-                if e == 0:
-                    continue
-                term = c * e
-                for m in range(nv):
-                    if m == j:
-                        term *= pw[m, e - 1]
-                    else:
-                        term *= pw[m, exps[i, k, m]]
-                J[i, j] += term
+                if e > 0:
+                    J[i, j] += e * pw[j, e - 1] * pre[j] * suffix
+                suffix *= pw[j, e]
         H[i] = h
         Hs[i] = hs
     h = -1.0 + 0j
@@ -83,10 +104,19 @@ def _system(exps, live, c0, dc, chart, s, x, pw, H, J, Hs):
 
 
 @njit(cache=True)
-def _solve2(A, b1, b2, out1, out2):
-    """Solve A [out1 out2] = [b1 b2] by Gaussian elimination with partial pivoting.
+def _work(exps):
+    """Scratch for `_system`: H, dH/ds, prefix products and the power table."""
+    nv = exps.shape[2]
+    return (np.empty(nv, dtype=np.complex128), np.empty(nv, dtype=np.complex128),
+            np.empty(nv, dtype=np.complex128), np.empty((nv, exps.max() + 1), dtype=np.complex128))
 
-    A, b1, b2 are overwritten. Returns False for an exactly singular or non-finite A.
+
+@njit(cache=True, inline="always")
+def _solve2(A, b1, b2, out1, out2, two):
+    """Solve A out1 = b1 (and A out2 = b2 when ``two``) by Gaussian elimination with
+    partial pivoting. A, b1, b2 are overwritten. Returns False for an exactly singular
+    or non-finite A.
+
     Pivots are chosen by |re| + |im| and reciprocals formed by hand: the library's
     careful complex abs and division cost more than the rest of the elimination.
     """
@@ -109,9 +139,10 @@ def _solve2(A, b1, b2, out1, out2):
             t = b1[col]
             b1[col] = b1[piv]
             b1[piv] = t
-            t = b2[col]
-            b2[col] = b2[piv]
-            b2[piv] = t
+            if two:
+                t = b2[col]
+                b2[col] = b2[piv]
+                b2[piv] = t
         d = A[col, col]
         m2 = d.real * d.real + d.imag * d.imag
         inv = complex(d.real / m2, -d.imag / m2)
@@ -121,19 +152,22 @@ def _solve2(A, b1, b2, out1, out2):
             for c in range(col + 1, n):
                 A[r, c] -= f * A[col, c]
             b1[r] -= f * b1[col]
-            b2[r] -= f * b2[col]
+            if two:
+                b2[r] -= f * b2[col]
     for r in range(n - 1, -1, -1):
         a1 = b1[r]
-        a2 = b2[r]
         for c in range(r + 1, n):
             a1 -= A[r, c] * out1[c]
-            a2 -= A[r, c] * out2[c]
         out1[r] = a1 * A[r, r]
-        out2[r] = a2 * A[r, r]
+        if two:
+            a2 = b2[r]
+            for c in range(r + 1, n):
+                a2 -= A[r, c] * out2[c]
+            out2[r] = a2 * A[r, r]
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _norm(v):
     t = 0.0
     for j in range(v.shape[0]):
@@ -141,22 +175,234 @@ def _norm(v):
     return np.sqrt(t)
 
 
-@njit(cache=True)
-def _weighted_norm(v, weight):
+@njit(cache=True, inline="always")
+def _weighted_norm(v, inv_weight):
     t = 0.0
     for j in range(v.shape[0]):
-        t += (v[j].real * v[j].real + v[j].imag * v[j].imag) / (weight[j] * weight[j])
+        t += (v[j].real * v[j].real + v[j].imag * v[j].imag) * inv_weight[j]
     return np.sqrt(t)
 
 
-@njit(cache=True)
-def _newton_velocity(exps, live, c0, dc, chart, s, x, pw, H, J, Hs, dx, vel):
-    """Newton step dx and velocity dX/ds at (x, s), one evaluation and one elimination."""
-    _system(exps, live, c0, dc, chart, s, x, pw, H, J, Hs)
+@njit(cache=True, inline="always")
+def _newton_velocity(P, s, x, W, J, dx, vel):
+    """Newton step dx and velocity dX/ds at (x, s): one evaluation, one elimination."""
+    _system(P, s, x, W, J, True)
+    H, Hs = W[0], W[1]
     for j in range(H.shape[0]):
         H[j] = -H[j]
         Hs[j] = -Hs[j]
-    return _solve2(J, H, Hs, dx, vel)
+    return _solve2(J, H, Hs, dx, vel, True)
+
+
+@njit(cache=True, inline="always")
+def _velocity(P, s, x, W, J, vel):
+    """Velocity dX/ds at (x, s) alone (H itself is not needed)."""
+    _system(P, s, x, W, J, False)
+    Hs = W[1]
+    for j in range(Hs.shape[0]):
+        Hs[j] = -Hs[j]
+    return _solve2(J, Hs, Hs, vel, vel, False)
+
+
+@njit(cache=True)
+def _step(P, W, J, V, s, s_new, inv_w, beta, tol, newton_steps):
+    """One predictor-corrector step from (V[0] = x, V[1] = v) at s to s_new (complex).
+
+    The result goes to V[2] (point) and V[3] (velocity). Returns (converged, first
+    correction relative to |X|). V[4:] are scratch.
+    """
+    x, v, xc, vc, k, tmp, dx = V[0], V[1], V[2], V[3], V[4], V[7], V[8]
+    nv = x.shape[0]
+    ds = s_new - s
+    # stages 2-4; k keeps the previous stage's velocity, xc sums the weighted stages
+    for j in range(nv):
+        k[j] = v[j]
+        xc[j] = v[j]
+    for stage in range(3):
+        frac = 1.0 if stage == 2 else 0.5
+        for j in range(nv):
+            tmp[j] = x[j] + frac * ds * k[j]
+        _velocity(P, s + frac * ds, tmp, W, J, k)
+        for j in range(nv):
+            xc[j] += (1.0 if stage == 2 else 2.0) * k[j]
+    for j in range(nv):
+        xc[j] = x[j] + ds / 6.0 * xc[j]
+    first = np.inf
+    for it in range(newton_steps):
+        if not _newton_velocity(P, s_new, xc, W, J, dx, vc):
+            return False, first
+        for j in range(nv):
+            xc[j] += dx[j]
+        r = _weighted_norm(dx, inv_w) / _weighted_norm(xc, inv_w)
+        if not np.isfinite(r):
+            return False, first
+        if it == 0:
+            first = r
+        if r > beta:
+            return False, first
+        if r <= tol:
+            return True, first
+    return False, first
+
+
+@njit(cache=True)
+def _segment(P, W, J, V, sa, sb, h, settings, trigger):
+    """Advance (V[0], V[1]) along the straight segment from sa to sb (complex).
+
+    ``h`` is the first step as a fraction of the segment. With ``trigger`` > 0 the walk
+    stops early, for the endgame, once ``_EG_STREAK`` accepted steps in a row, each
+    starting at ``|s| <= _EG_RADIUS``, covered less than ``_EG_RATIO |s|`` (and were not
+    capped by h_max). Returns (state, fraction reached, next h): state DONE
+    (reached sb), ACTIVE (stopped for the endgame), STALLED / FAILED (steps collapsed
+    near / away from s = 0, or out of steps).
+    """
+    inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop = settings
+    x, v, xc, vc = V[0], V[1], V[2], V[3]
+    length = abs(sb - sa)
+    t = 0.0
+    streak = 0  # accepted steps in a row that were short for the endgame test
+    for _ in range(max_steps):
+        t_new = min(1.0, t + h)
+        if (1.0 - t_new) * length <= s_stop:
+            t_new = 1.0
+        s = sa + t * (sb - sa)
+        converged, first = _step(P, W, J, V, s, sa + t_new * (sb - sa), inv_w, beta, tol, newton_steps)
+        factor = 0.5
+        if first > 0 and np.isfinite(first):
+            factor = 0.8 * (beta / first) ** 0.2
+        elif first == 0:
+            factor = 2.0
+        if converged:
+            for j in range(x.shape[0]):
+                x[j] = xc[j]
+                v[j] = vc[j]
+            taken = t_new - t
+            before = abs(s)
+            t = t_new
+            h = min(h_max, h * min(2.0, max(0.5, factor)))
+            if t == 1.0:
+                return DONE, t, h
+            # short steps not imposed by h_max, several in a row: a singular end point
+            short = before <= _EG_RADIUS and taken * length < _EG_RATIO * before and h < h_max
+            streak = streak + 1 if short else 0
+            if trigger and streak >= _EG_STREAK:
+                return ACTIVE, t, h
+        else:
+            # shrink from the step actually tried (h may exceed what was left)
+            h = (t_new - t) * min(0.5, max(0.1, factor))
+            here = abs(sa + t * (sb - sa))
+            if h * length < 1e-14 + 1e-9 * here:
+                return (STALLED if here < 1e-4 else FAILED), t, h
+    here = abs(sa + t * (sb - sa))
+    return (STALLED if here < 1e-4 else FAILED), t, h
+
+
+@njit(cache=True)
+def _polish(P, W, J, V, s, inv_w):
+    """Newton at fixed s on V[0] until the correction is below 1e-12 |X| (4 steps at most)."""
+    x, dx, tmp = V[0], V[8], V[7]
+    for _ in range(4):
+        if not _newton_velocity(P, s, x, W, J, dx, tmp):
+            return
+        for j in range(x.shape[0]):
+            x[j] += dx[j]
+        if _weighted_norm(dx, inv_w) <= 1e-12 * _weighted_norm(x, inv_w):
+            return
+
+
+@njit(cache=True)
+def _residual(P, x, W):
+    """max_i |H_i(x, 0)| / sum_k |c_ik| |x|_max**deg_k: the target's residual relative to
+    the size its terms can have at this |x| (not their actual sizes, which can all be
+    rounding noise at a point where every monomial vanishes)."""
+    exps, live, c0, _, _ = P
+    q, K, nv = exps.shape
+    pw = W[3]
+    radius = 0.0
+    for j in range(nv):
+        radius = max(radius, abs(x[j]))
+        pw[j, 0] = 1.0
+        for e in range(1, pw.shape[1]):
+            pw[j, e] = pw[j, e - 1] * x[j]
+    worst = 0.0
+    for i in range(q):
+        h = 0j
+        size = 0.0
+        for k in range(K):
+            if live[i, k]:
+                term = c0[i, k]
+                degree = 0
+                for j in range(nv):
+                    term *= pw[j, exps[i, k, j]]
+                    degree += exps[i, k, j]
+                h += term
+                size += abs(c0[i, k]) * radius ** degree
+        if size > 0:
+            worst = max(worst, abs(h) / size)
+    return worst
+
+
+@njit(cache=True)
+def _cauchy(P, W, J, V, E, r, settings):
+    """Cauchy endgame from (V[0], V[1]) at s = r (real). On success the end point is in
+    E[0] and the cycle number is returned; 0 when it does not settle (V then holds the
+    path at the last real radius reached, E[3] its s in the real part)."""
+    inv_w = settings[0]
+    x, v = V[0], V[1]
+    start, total, home_v = E[1], E[2], E[4]
+    nv = x.shape[0]
+    M = _EG_SAMPLES
+    for rnd in range(_EG_ROUNDS):
+        E[3, 0] = r
+        _polish(P, W, J, V, complex(r, 0.0), inv_w)
+        for j in range(nv):
+            start[j] = x[j]
+            home_v[j] = v[j]
+            total[j] = 0j
+        cycle = 0
+        broken = False
+        for turn in range(1, _EG_CYCLE + 1):
+            for k in range(M):
+                for j in range(nv):
+                    total[j] += x[j]
+                sa = r * np.exp(2j * np.pi * k / M)
+                sb = r * np.exp(2j * np.pi * (k + 1) / M)
+                state, _, _ = _segment(P, W, J, V, sa, sb, 1.0, settings, False)
+                if state != DONE:
+                    broken = True
+                    break
+            if broken:
+                break
+            gap = 0.0
+            for j in range(nv):
+                z = x[j] - start[j]
+                gap += (z.real * z.real + z.imag * z.imag) * inv_w[j]
+            if np.sqrt(gap) <= _EG_CLOSE * _weighted_norm(start, inv_w):
+                cycle = turn
+                break
+        # back on the real axis at s = r whatever happened on the circle
+        for j in range(nv):
+            x[j] = start[j]
+            v[j] = home_v[j]
+        if broken or cycle == 0:
+            return 0
+        for j in range(nv):
+            E[0, j] = total[j] / (cycle * M)
+        # accepted only if it solves the target to rounding level: radii that agree
+        # are not enough, since every circle around another branch point near s = 0
+        # averages the same different end points
+        if _residual(P, E[0], W) <= _EG_RESIDUAL:
+            return cycle
+        state, _, _ = _segment(P, W, J, V, complex(r, 0.0), complex(r * _EG_SHRINK, 0.0), 1.0,
+                               settings, False)
+        if state != DONE:
+            for j in range(nv):
+                x[j] = start[j]
+                v[j] = home_v[j]
+            return 0
+        r *= _EG_SHRINK
+    E[3, 0] = r
+    return 0
 
 
 @njit(cache=True)
@@ -164,87 +410,49 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
                 newton_steps, max_steps, s_stop):
     """Track every row of X0 from s = 1 to s = 0.
 
-    Returns endpoints (N, nv) and states (N,) int8 (DONE / FAILED / STALLED).
+    Returns endpoints (N, nv), states (N,) int8 (DONE / FAILED / STALLED) and cycle
+    numbers (N,) int8: 0 for a path that reached s = 0 by plain steps, c >= 1 for one
+    whose end point the endgame computed.
     """
     N, nv = X0.shape
-    pw = np.empty((nv, exps.max() + 1), dtype=np.complex128)  # powers of each coordinate
-    H, Hs, dx, k2, k3, k4, tmp, x, v, xc, vc = np.empty((11, nv), dtype=np.complex128)
+    W = _work(exps)
+    V = np.empty((9, nv), dtype=np.complex128)
+    E = np.empty((5, nv), dtype=np.complex128)
     J = np.empty((nv, nv), dtype=np.complex128)
-
+    inv_w = 1.0 / weight ** 2
+    settings = (inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop)
     out = np.empty((N, nv), dtype=np.complex128)
     state = np.zeros(N, dtype=np.int8)
+    cycle = np.zeros(N, dtype=np.int8)
+    x, v = V[0], V[1]
     for p in range(N):
-        c0 = C0[group[p]]
-        dc = dC[group[p]]
+        P = (exps, live, C0[group[p]], dC[group[p]], chart)
         for j in range(nv):
             x[j] = X0[p, j]
-        s = 1.0
-        h = h_init
-        if not _newton_velocity(exps, live, c0, dc, chart, s, x, pw, H, J, Hs, dx, v):
+        if not _newton_velocity(P, 1.0 + 0j, x, W, J, V[8], v):
             state[p] = FAILED
             out[p] = x
             continue
-        st = ACTIVE
-        for _ in range(max_steps):
-            step = min(h, s)
-            s_new = s - step
-            if s_new <= s_stop:
-                s_new = 0.0
-            ds = s_new - s
-            # classical Runge-Kutta on dX/ds = -H_X^-1 H_s (k1 = v)
-            for j in range(nv):
-                tmp[j] = x[j] + 0.5 * ds * v[j]
-            _newton_velocity(exps, live, c0, dc, chart, s + 0.5 * ds, tmp, pw, H, J, Hs, dx, k2)
-            for j in range(nv):
-                tmp[j] = x[j] + 0.5 * ds * k2[j]
-            _newton_velocity(exps, live, c0, dc, chart, s + 0.5 * ds, tmp, pw, H, J, Hs, dx, k3)
-            for j in range(nv):
-                tmp[j] = x[j] + ds * k3[j]
-            _newton_velocity(exps, live, c0, dc, chart, s_new, tmp, pw, H, J, Hs, dx, k4)
-            for j in range(nv):
-                xc[j] = x[j] + ds / 6.0 * (v[j] + 2 * k2[j] + 2 * k3[j] + k4[j])
-            first = np.inf
-            converged = False
-            for it in range(newton_steps):
-                solved = _newton_velocity(exps, live, c0, dc, chart, s_new, xc, pw, H, J, Hs, dx, vc)
-                if not solved:
-                    break
+        s, h, trigger = 1.0, h_init, True
+        while True:
+            st, t, h = _segment(P, W, J, V, complex(s, 0.0), 0j, h, settings, trigger)
+            s = s * (1.0 - t)
+            if st != ACTIVE:
+                break
+            c = _cauchy(P, W, J, V, E, s, settings)
+            if c > 0:
+                st = DONE
+                cycle[p] = c
                 for j in range(nv):
-                    xc[j] += dx[j]
-                r = _weighted_norm(dx, weight) / _weighted_norm(xc, weight)
-                if not np.isfinite(r):
-                    break
-                if it == 0:
-                    first = r
-                if r > beta:
-                    break
-                if r <= tol:
-                    converged = True
-                    break
-            factor = 0.5
-            if first > 0 and np.isfinite(first):
-                factor = 0.8 * (beta / first) ** 0.2
-            elif first == 0:
-                factor = 2.0
-            if converged:
-                for j in range(nv):
-                    x[j] = xc[j]
-                    v[j] = vc[j]
-                s = s_new
-                h = min(h_max, h * min(2.0, max(0.5, factor)))
-                if s == 0.0:
-                    st = DONE
-                    break
-            else:
-                h *= min(0.5, max(0.1, factor))
-                if h < 1e-14 + 1e-9 * s:
-                    st = STALLED if s < 1e-4 else FAILED
-                    break
-        if st == ACTIVE:
-            st = STALLED if s < 1e-4 else FAILED
+                    x[j] = E[0, j]
+                break
+            # the endgame did not settle: plain steps from where it left the real axis
+            s = E[3, 0].real
+            trigger = False
+            h = 0.1
         state[p] = st
         out[p] = x
-    return out, state
+    return out, state, cycle
 
 
 @njit(cache=True)
@@ -259,19 +467,19 @@ def refine_paths(exps, live, chart, C0, dC, group, X, budget):
     """
     N, nv = X.shape
     q, K, _ = exps.shape
-    pw = np.empty((nv, exps.max() + 1), dtype=np.complex128)  # powers of each coordinate
-    H, Hs, dx, vel, e1, e2, o1, o2, x = np.empty((9, nv), dtype=np.complex128)
+    W = _work(exps)
+    dx, vel, e1, e2, o1, o2, x = np.empty((7, nv), dtype=np.complex128)
     J = np.empty((nv, nv), dtype=np.complex128)
     A = np.empty((nv, nv), dtype=np.complex128)
     out = np.empty((N, nv), dtype=np.complex128)
     cond = np.empty(N)
     for p in range(N):
         c0 = C0[group[p]]
-        dc = dC[group[p]]
+        P = (exps, live, c0, dC[group[p]], chart)
         for j in range(nv):
             x[j] = X[p, j]
         for it in range(budget[p]):
-            if not _newton_velocity(exps, live, c0, dc, chart, 0.0, x, pw, H, J, Hs, dx, vel):
+            if not _newton_velocity(P, 0j, x, W, J, dx, vel):
                 break
             finite = True
             for j in range(nv):
@@ -285,7 +493,7 @@ def refine_paths(exps, live, chart, C0, dC, group, X, budget):
                 break
         out[p] = x
         # row-scaled Jacobian at the end point
-        _system(exps, live, c0, dc, chart, 0.0, x, pw, H, J, Hs)
+        _system(P, 0j, x, W, J, False)
         radius = 0.0
         for j in range(nv):
             radius = max(radius, abs(x[j]))
@@ -334,7 +542,7 @@ def _condition_1(J, A, e1, e2, o1, o2):
         for r in range(n):
             for m in range(n):
                 A[r, m] = J[r, m]
-        if not _solve2(A, e1, e2, o1, o2):
+        if not _solve2(A, e1, e2, o1, o2, True):
             return np.inf
         s1 = 0.0
         s2 = 0.0
@@ -381,3 +589,29 @@ def near_pairs(points, per_group, rel):
                     close_any[j] = True
                     close_later[j] = True
     return close_any, close_later
+
+
+@njit(cache=True)
+def broken_cycles(points, cycle, per_group, rel):
+    """Which points belong to a cluster whose paths with cycle number c >= 2 do not
+    come c at a time (clusters: points of one block within ``rel * |point|``)."""
+    N, d = points.shape
+    broken = np.zeros(N, dtype=np.bool_)
+    for lo in range(0, N, per_group):
+        hi = min(N, lo + per_group)
+        for i in range(lo, hi):
+            size = _norm(points[i])
+            if not np.isfinite(size) or cycle[i] < 2:
+                continue
+            same = 0
+            for j in range(lo, hi):
+                if cycle[j] != cycle[i]:
+                    continue
+                gap = 0.0
+                for c in range(d):
+                    z = points[i, c] - points[j, c]
+                    gap += z.real * z.real + z.imag * z.imag
+                if np.sqrt(gap) <= rel * max(size, _norm(points[j])):
+                    same += 1
+            broken[i] = same % cycle[i] != 0
+    return broken
