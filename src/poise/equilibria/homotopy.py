@@ -71,6 +71,7 @@ import numpy as np
 import sympy
 
 from poise.equilibria import tracker
+from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
 
 # Paths advanced together; larger batches of parameter sets are cut into chunks of this
@@ -293,12 +294,12 @@ def _norm(v: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True)
 class _Homotopy:
-    """``H(X, s) = sum_k (C0[g] + s dC[g]) X^E_k`` plus the chart ``a . X = 1``."""
+    """``H(X, s) = sum_k c_k(s) X^E_k`` plus the chart ``a . X = 1``, where
+    ``c_k(s) = sum_m C[g, i, k, m] s**m`` for the paths of group g."""
 
     table: _Table
     chart: np.ndarray  # (n+1,) complex
-    C0: np.ndarray     # (G, q, K) complex, coefficients at s = 0
-    dC: np.ndarray     # (G, q, K) complex, dC/ds
+    C: np.ndarray      # (G, q, K, degree in s + 1) complex
     # typical size of each coordinate: step acceptance measures corrections in units of
     # it, so a small coordinate (a scarce species) is not drowned by a large one
     weight: np.ndarray | None = None
@@ -306,7 +307,13 @@ class _Homotopy:
     def arrays(self):
         exps, live = self.table.arrays()
         return (exps, live, np.ascontiguousarray(self.chart, dtype=complex),
-                np.ascontiguousarray(self.C0, dtype=complex), np.ascontiguousarray(self.dC, dtype=complex))
+                np.ascontiguousarray(self.C, dtype=complex))
+
+
+def _line(table: _Table, chart: np.ndarray, C0: np.ndarray, C1: np.ndarray,
+          weight: np.ndarray | None = None) -> _Homotopy:
+    """The straight line in coefficient space from ``C1`` (s = 1) to ``C0`` (s = 0)."""
+    return _Homotopy(table, chart, np.stack(np.broadcast_arrays(C0, C1 - C0), axis=-1), weight)
 
 
 @dataclass(frozen=True)
@@ -442,6 +449,7 @@ class _Compiled:
     denominator_table: _Table     # denominator factors (X_0 exponent 0)
     denominator_coefficients: object
     denominator_has_state: np.ndarray  # (q,) bool
+    family: ParameterFamily | None = None  # numerator coefficients as polynomials in params
 
 
 def _term_table(polys: list[sympy.Poly], degrees, homogeneous: bool):
@@ -510,7 +518,8 @@ def _compile(system: PolynomialSystem) -> _Compiled:
                      coefficients=_coefficient_function(params, exprs),
                      denominator_table=den_table,
                      denominator_coefficients=_coefficient_function(params, den_exprs),
-                     denominator_has_state=has_state)
+                     denominator_has_state=has_state,
+                     family=parameter_family(params, exprs))
 
 
 # --------------------------------------------------------------------- start solve
@@ -567,7 +576,7 @@ def _start(system: PolynomialSystem, seed: int) -> _Start:
     lost = []
     for _ in range(2):  # two gammas; merging guards against a lost path
         gamma = np.exp(2j * np.pi * rng.random())
-        hom = _Homotopy(table, chart, target[None], (gamma * start_coef - target)[None])
+        hom = _line(table, chart, target[None], gamma * start_coef[None])
         group = np.zeros(len(X), dtype=int)
         end, state, cond, jumped = _track_all(hom, X, group, per_group=len(X))
         finite = _finite(end)
@@ -576,7 +585,7 @@ def _start(system: PolynomialSystem, seed: int) -> _Start:
         lost.append(bool((state == _FAILED).any() or jumped.any()))
     roots = _unique_points(np.concatenate(found))
     # re-express on the system's own table (same chart) and polish
-    hom = _Homotopy(comp.table, chart, cstar[None], np.zeros((1,) + cstar.shape))
+    hom = _line(comp.table, chart, cstar[None], cstar[None])
     roots, _ = _refine(hom, roots, np.zeros(len(roots), dtype=int), np.full(len(roots), 4))
     return _Start(chart, cstar, roots, incomplete=all(lost))
 
@@ -590,11 +599,12 @@ def _unique_points(points: np.ndarray, rel: float = 1e-7) -> np.ndarray:
 
 # ------------------------------------------------------------------------- hubs
 
-# Hub start coefficients: the hub's own (normalised) coefficients plus this much random
-# complex noise. The noise makes each hub a generic member of the family (all roots
-# finite and simple, with probability one), so the straight path from a hub to a real
-# target meets no singularity before s = 0 with probability one (Morgan & Sommese 1989),
-# however close the hub is; it is kept small so that hubs stay close to the targets.
+# Hub start points: the hub's own values plus this much random complex noise, relative
+# (in its coefficients, or in its parameters for a parameter-space line). The noise makes
+# each hub a generic member of the family (all roots finite and simple, with probability
+# one), so the straight path from a hub to a real target meets no singularity before
+# s = 0 with probability one (Morgan & Sommese 1989), however close the hub is; it is
+# kept small so that hubs stay close to the targets.
 _HUB_NOISE = 0.1
 
 
@@ -605,28 +615,44 @@ class _Hubs:
     roots: np.ndarray         # (H, R, n+1): every root at the start coefficients
     weight: np.ndarray        # (n+1,) typical size of each coordinate at the hubs' roots
     infinite: np.ndarray      # (H,) paths that diverge from the hub to its own real system
+    # (H, m) complex start parameters when targets are reached along lines in parameter
+    # space (`poise.equilibria.parameter_path`); None for lines in coefficient space
+    params: np.ndarray | None = None
 
 
 @lru_cache(maxsize=8)
 def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -> _Hubs:
     """Every root of each hub's start system, tracked from the generic start.
 
+    When the coefficients are polynomials in the parameters and the model's own family
+    has fewer roots than the generic start (surplus paths that would diverge at every
+    target), the hubs are complex parameter points and targets are reached along lines
+    in parameter space; otherwise the hubs are complex coefficient points.
+
     Hubs whose coefficients cannot be evaluated, or where a path failed, jumped or ended
-    singular or at infinity (not the full generic root count), are dropped: a target
-    then uses another hub, or the generic start when none is left.
+    singular or at infinity (not the full root count), are dropped: a target then uses
+    another hub, or the generic start when none is left.
     """
     comp, start = _compile(system), _start(system, seed)
     params = np.frombuffer(values, dtype=float).reshape(count, -1)
-    q, K = comp.table.live.shape
-    R, nv = start.roots.shape
-    empty = _Hubs(np.zeros((0, q, K), complex), np.zeros((0, q * K)), np.zeros((0, R, nv), complex),
-                  np.ones(nv), np.zeros(0, dtype=int))
     coef = comp.coefficients(params)
     with np.errstate(all="ignore"):
         usable = np.isfinite(coef).all(axis=(1, 2)) & ~(coef == 0).all(axis=2).any(axis=1)
         anchor = coef[usable] / np.abs(coef[usable]).max(axis=2, keepdims=True)
+    if len(start.roots) and len(anchor) and comp.family is not None:
+        hubs = _parameter_hubs(comp, start, params[usable], anchor, seed)
+        if hubs is not None:
+            return hubs
+    return _coefficient_hubs(comp, start, anchor, seed)
+
+
+def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: int) -> _Hubs:
+    """Hubs at each hub's normalised coefficients plus relative complex noise."""
+    q, K = comp.table.live.shape
+    R, nv = start.roots.shape
     if R == 0 or not len(anchor):
-        return empty
+        return _Hubs(np.zeros((0, q, K), complex), np.zeros((0, q * K)), np.zeros((0, R, nv), complex),
+                     np.ones(nv), np.zeros(0, dtype=int))
     rng = np.random.default_rng([seed, 1989])
     noise = np.where(comp.table.live, _complex_normal(rng, (len(anchor), q, K)), 0)
     # relative noise keeps each coefficient's own scale (small coefficients set where
@@ -635,23 +661,80 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     size = np.abs(anchor)
     smallest = np.where(size > 0, size, np.inf).min(axis=2, keepdims=True)
     hub_coef = anchor + _HUB_NOISE * noise * np.where(size > 0, size, smallest)
-    hom = _Homotopy(comp.table, start.chart, hub_coef, start.cstar[None] - hub_coef)
-    group = np.repeat(np.arange(len(anchor)), R)
-    end, state, cond, jumped = _track_all(hom, np.tile(start.roots, (len(anchor), 1)), group, R)
-    finite = _finite(end)
-    good = (state == _DONE) & finite & (cond < _SINGULAR) & ~jumped
-    whole = good.reshape(-1, R).all(axis=1)
-    roots = end.reshape(-1, R, nv)[whole]
+    roots, whole = _roots_at(comp, start, hub_coef)
     hub_coef, anchor = hub_coef[whole], anchor[whole]
     weight = _typical_size(roots.reshape(-1, nv))
     # how many paths diverge on the way from each hub to its own (real) system: targets
     # near the hub should lose no more than that many to infinity
-    own = _Homotopy(comp.table, start.chart, anchor.astype(complex), hub_coef - anchor, weight)
-    group = np.repeat(np.arange(len(anchor)), R)
-    own_end, _, _, _ = _track_all(own, roots.reshape(-1, nv), group, R)
-    infinite = np.bincount(group[~_finite(own_end)], minlength=len(anchor))
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(-1, q * K), roots=roots,
-                 weight=weight, infinite=infinite)
+    own = _line(comp.table, start.chart, anchor.astype(complex), hub_coef, weight)
+    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), -1), roots=roots,
+                 weight=weight, infinite=_diverging(own, roots))
+
+
+def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: np.ndarray,
+                    seed: int) -> _Hubs | None:
+    """Hubs at each hub's parameters plus relative complex noise, or None when that does
+    not save paths (or the family's generic roots are not all simple)."""
+    nv = start.roots.shape[1]
+    rng = np.random.default_rng([seed, 1993])
+    scale = np.where(params != 0, params, 1.0)
+    hub_params = params + _HUB_NOISE * scale * _complex_normal(rng, params.shape)
+    with np.errstate(all="ignore"):
+        hub_coef = comp.family.evaluate(hub_params)
+        size = np.abs(hub_coef).max(axis=2, keepdims=True)
+        hub_coef = hub_coef / size
+    ok = np.isfinite(hub_coef).all(axis=(1, 2)) & (size[..., 0] > 0).all(axis=1)
+    if not ok.any():
+        return None
+    hub_params, hub_coef, anchor = hub_params[ok], hub_coef[ok], anchor[ok]
+    roots, clean = _roots_at(comp, start, hub_coef, keep_partial=True)
+    counts = np.array([len(r) for r in roots])
+    R = int(counts[clean].max(initial=0))
+    kept = clean & (counts == R)  # fewer roots: a lost path, not genericity
+    # most hubs must agree: otherwise the family's generic roots are not all simple
+    # (e.g. roots multiple for every parameter value), and no hub is a valid start
+    if R == 0 or R >= len(start.roots) or kept.sum() < len(counts) / 2:
+        return None
+    roots = np.stack([roots[i] for i in np.flatnonzero(kept)])
+    hub_params, hub_coef, anchor = hub_params[kept], hub_coef[kept], anchor[kept]
+    weight = _typical_size(roots.reshape(-1, nv))
+    real = params[ok][kept]
+    C = along_line(comp.family, real, hub_params)
+    with np.errstate(all="ignore"):
+        C = C / np.abs(C[..., 0]).max(axis=2, keepdims=True)[..., None]
+    own = _Homotopy(comp.table, start.chart, C, weight)
+    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), -1), roots=roots,
+                 weight=weight, infinite=_diverging(own, roots), params=hub_params)
+
+
+def _roots_at(comp: _Compiled, start: _Start, coef: np.ndarray, keep_partial: bool = False):
+    """Finite nonsingular roots of each system ``coef`` (H, q, K), from the generic start.
+
+    Returns (roots, whole): roots (H', R, n+1) of the systems where every path ended at
+    a finite nonsingular root (``whole``). With ``keep_partial``, a list of each
+    system's finite nonsingular roots instead, and ``whole`` marks the systems where
+    every other path ended at infinity (none failed, jumped or ended finite but singular).
+    """
+    R, nv = start.roots.shape
+    hom = _line(comp.table, start.chart, coef, start.cstar[None])
+    group = np.repeat(np.arange(len(coef)), R)
+    end, state, cond, jumped = _track_all(hom, np.tile(start.roots, (len(coef), 1)), group, R)
+    finite = _finite(end)
+    good = (state == _DONE) & finite & (cond < _SINGULAR) & ~jumped
+    if keep_partial:
+        unclear = (state == _FAILED) | jumped | (finite & ~good)
+        clean = ~unclear.reshape(-1, R).any(axis=1)
+        return [end[g * R:(g + 1) * R][good[g * R:(g + 1) * R]] for g in range(len(coef))], clean
+    whole = good.reshape(-1, R).all(axis=1)
+    return end.reshape(-1, R, nv)[whole], whole
+
+
+def _diverging(hom: _Homotopy, roots: np.ndarray) -> np.ndarray:
+    """Paths per group that end at infinity, tracking ``roots`` (G, R, n+1) along ``hom``."""
+    G, R, nv = roots.shape
+    group = np.repeat(np.arange(G), R)
+    end, _, _, _ = _track_all(hom, roots.reshape(-1, nv), group, R)
+    return np.bincount(group[~_finite(end)], minlength=G)
 
 
 def _typical_size(points: np.ndarray) -> np.ndarray:
@@ -701,18 +784,24 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
 
     # scale each equation to unit largest coefficient: same roots, better-balanced path
     target = coef[sets]
-    target = target / np.abs(target).max(axis=2, keepdims=True)
+    scale = 1.0 / np.abs(target).max(axis=2, keepdims=True)
+    target = target * scale
     C0 = target.astype(complex)
-    group = np.repeat(np.arange(sets.size), R)
     if hubs is not None and len(hubs.roots):
         near = _nearest(target.reshape(sets.size, -1), hubs.anchor)
-        hom = _Homotopy(comp.table, start.chart, C0, hubs.coefficients[near] - C0, hubs.weight)
+        R = hubs.roots.shape[1]
+        if hubs.params is not None:  # along a line in parameter space
+            C = along_line(comp.family, values[sets], hubs.params[near]) * scale[..., None]
+            hom = _Homotopy(comp.table, start.chart, C, hubs.weight)
+        else:
+            hom = _line(comp.table, start.chart, C0, hubs.coefficients[near], hubs.weight)
         X = hubs.roots[near].reshape(sets.size * R, -1)
         expected = hubs.infinite[near]
     else:
         expected = None
-        hom = _Homotopy(comp.table, start.chart, C0, start.cstar[None] - C0)
+        hom = _line(comp.table, start.chart, C0, start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
+    group = np.repeat(np.arange(sets.size), R)
     end, state, cond, jumped = _track_all(hom, X, group, per_group=R, expected_infinite=expected)
 
     failed = np.bincount(group[state == _FAILED], minlength=sets.size)

@@ -1,4 +1,8 @@
-"""Compiled predictor-corrector tracking of ``H(X, s) = sum_k (C0 + s dC)_k X^E_k``.
+"""Compiled predictor-corrector tracking of ``H(X, s) = sum_k c_k(s) X^E_k``.
+
+Each coefficient is a polynomial in ``s``: ``c_k(s) = sum_m C[k, m] s**m`` (degree 1
+for a straight line in coefficient space, higher along a line in parameter space when
+the coefficients are polynomials in the parameters).
 
 The homotopy (`poise.equilibria.homotopy`) spends nearly all its time advancing paths.
 Doing that with whole-array numpy operations costs about a microsecond per path and
@@ -58,12 +62,14 @@ _EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 5, 1e-6, 1e-12
 @njit(cache=True, inline="always")
 def _system(P, s, x, W, J, want_h):
     """H (unless not want_h), dH/ds and the Jacobian J at (x, s), into W = (H, Hs, pre,
-    pw) and J; P = (exps, live, c0, dc, chart). The chart is the last row.
+    pw) and J; P = (exps, live, C, chart) with C (q, K, degree in s + 1). The chart is
+    the last row.
 
     pre (nv,) and the power table pw (nv, max degree + 1) are scratch.
     """
-    exps, live, c0, dc, chart = P
+    exps, live, C, chart = P
     q, K, nv = exps.shape
+    top = C.shape[2] - 1
     H, Hs, pre, pw = W
     for j in range(nv):
         pw[j, 0] = 1.0
@@ -77,7 +83,12 @@ def _system(P, s, x, W, J, want_h):
         for k in range(K):
             if not live[i, k]:
                 continue
-            c = c0[i, k] + s * dc[i, k]
+            # c(s) and dc/ds by Horner's rule
+            c = C[i, k, top]
+            dc = 0j
+            for m in range(top - 1, -1, -1):
+                dc = dc * s + c
+                c = c * s + C[i, k, m]
             # prefix products of the monomial's factors; the suffix is built on the way
             # back, so each partial derivative costs two multiplications
             acc = 1.0 + 0j
@@ -86,7 +97,7 @@ def _system(P, s, x, W, J, want_h):
                 acc *= pw[j, exps[i, k, j]]
             if want_h:
                 h += c * acc
-            hs += dc[i, k] * acc
+            hs += dc * acc
             suffix = c
             for j in range(nv - 1, -1, -1):
                 e = exps[i, k, j]
@@ -183,7 +194,7 @@ def _weighted_norm(v, inv_weight):
     return np.sqrt(t)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _newton_velocity(P, s, x, W, J, dx, vel):
     """Newton step dx and velocity dX/ds at (x, s): one evaluation, one elimination."""
     _system(P, s, x, W, J, True)
@@ -194,7 +205,7 @@ def _newton_velocity(P, s, x, W, J, dx, vel):
     return _solve2(J, H, Hs, dx, vel, True)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _velocity(P, s, x, W, J, vel):
     """Velocity dX/ds at (x, s) alone (H itself is not needed)."""
     _system(P, s, x, W, J, False)
@@ -315,7 +326,7 @@ def _residual(P, x, W):
     """max_i |H_i(x, 0)| / sum_k |c_ik| |x|_max**deg_k: the target's residual relative to
     the size its terms can have at this |x| (not their actual sizes, which can all be
     rounding noise at a point where every monomial vanishes)."""
-    exps, live, c0, _, _ = P
+    exps, live, C, _ = P
     q, K, nv = exps.shape
     pw = W[3]
     radius = 0.0
@@ -330,13 +341,13 @@ def _residual(P, x, W):
         size = 0.0
         for k in range(K):
             if live[i, k]:
-                term = c0[i, k]
+                term = C[i, k, 0]
                 degree = 0
                 for j in range(nv):
                     term *= pw[j, exps[i, k, j]]
                     degree += exps[i, k, j]
                 h += term
-                size += abs(c0[i, k]) * radius ** degree
+                size += abs(C[i, k, 0]) * radius ** degree
         if size > 0:
             worst = max(worst, abs(h) / size)
     return worst
@@ -406,7 +417,7 @@ def _cauchy(P, W, J, V, E, r, settings):
 
 
 @njit(cache=True)
-def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, beta, tol,
+def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, tol,
                 newton_steps, max_steps, s_stop):
     """Track every row of X0 from s = 1 to s = 0.
 
@@ -426,7 +437,7 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
     cycle = np.zeros(N, dtype=np.int8)
     x, v = V[0], V[1]
     for p in range(N):
-        P = (exps, live, C0[group[p]], dC[group[p]], chart)
+        P = (exps, live, C[group[p]], chart)
         for j in range(nv):
             x[j] = X0[p, j]
         if not _newton_velocity(P, 1.0 + 0j, x, W, J, V[8], v):
@@ -456,7 +467,7 @@ def track_paths(exps, live, chart, C0, dC, group, X0, weight, h_init, h_max, bet
 
 
 @njit(cache=True)
-def refine_paths(exps, live, chart, C0, dC, group, X, budget):
+def refine_paths(exps, live, chart, C, group, X, budget):
     """Newton at s = 0 from each row of X (at most ``budget[p]`` steps, stopping once a
     step is below 1e-15 |X|), and the condition number of each end point's Jacobian.
 
@@ -474,8 +485,7 @@ def refine_paths(exps, live, chart, C0, dC, group, X, budget):
     out = np.empty((N, nv), dtype=np.complex128)
     cond = np.empty(N)
     for p in range(N):
-        c0 = C0[group[p]]
-        P = (exps, live, c0, dC[group[p]], chart)
+        P = (exps, live, C[group[p]], chart)
         for j in range(nv):
             x[j] = X[p, j]
         for it in range(budget[p]):
@@ -508,7 +518,7 @@ def refine_paths(exps, live, chart, C0, dC, group, X, budget):
                     for j in range(nv):
                         d += exps[i, k, j]
                     if d > 0:
-                        bound += abs(c0[i, k]) * d * radius ** (d - 1)
+                        bound += abs(C[group[p], i, k, 0]) * d * radius ** (d - 1)
             if bound == 0.0:
                 bound = 1.0
             for j in range(nv):
