@@ -42,7 +42,7 @@ from scipy.optimize import root
 from poise.equilibria.choice import polynomial_system
 from poise.equilibria.continuation import find_by_homotopy, hub_parameters
 from poise.equilibria.finder import find_steady_states
-from poise.equilibria.homotopy import generic_root_count, solve_batch
+from poise.equilibria.homotopy import generic_root_count, paths_per_set, solve_batch
 from poise.equilibria.polynomial import polynomial_form
 from poise.model import compile_model
 from poise.sampling import make_design, map_to_parameters
@@ -140,7 +140,8 @@ def _run_homotopy(case: Case, params: np.ndarray, seed: int, repeat: int):
     setup = time.perf_counter() - t0
     result, elapsed = _best_time(lambda: solve_batch(system, params, seed=seed, hubs=hubs), repeat)
     found = [result.roots[i, :result.count[i]] for i in range(len(params))]
-    note = (f"{generic_root_count(system, seed=seed)} paths/set from 64 hubs, set-up {setup:.2f} s, "
+    note = (f"{paths_per_set(system, hubs, seed=seed)} paths/set from 64 hubs "
+            f"({generic_root_count(system, seed=seed)} generic), set-up {setup:.2f} s, "
             f"status!=0: {(result.status != 0).sum()}")
     return found, elapsed, note
 
@@ -242,7 +243,8 @@ def bundled(sets: int, seed: int, repeat: int) -> None:
         print(f"{label:<16}{'Newton':<10}{sets / t_newton:>10.0f}{100 * complete[0]:>9.2f}%{1.0:>11.2f}"
               f"  complete vs {reference}")
         print(f"{'':<16}{'homotopy':<10}{sets / t_hom:>10.0f}{100 * complete[1]:>9.2f}%{t_newton / t_hom:>11.2f}"
-              f"  {generic_root_count(system)} paths/set, set-up {setup:.2f} s")
+              f"  {paths_per_set(system, hubs)} paths/set ({generic_root_count(system)} generic), "
+              f"set-up {setup:.2f} s")
     print()
 
 

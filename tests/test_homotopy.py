@@ -382,3 +382,79 @@ def test_empty_batch_and_wrong_shapes():
     with pytest.raises(ValueError):
         solve_batch(system, np.zeros((3, 3)))
     assert isinstance(system, PolynomialSystem)
+
+
+# ------------------------------------------------------------------ endgame, parameter lines
+
+
+def test_endgame_returns_a_triple_root_accurately_with_cycle_number_three():
+    # (x - a)^3 (x + b): x = a is a triple root. The three paths ending there behave like
+    # a + O(s^(1/3)) near s = 0 and are permuted cyclically by a loop around s = 0, so
+    # each has cycle number 3 (Puiseux expansion; Sommese & Wampler 2005, sec. 10.3),
+    # and the Cauchy integral gives the root far more accurately than the eps**(1/3)
+    # (~6e-6) that Newton reaches at a triple root. x = -b is simple (plain steps).
+    system = polynomial_form([(x - a) ** 3 * (x + b)], [x], [a, b])
+    comp, start = homotopy._compile(system), homotopy._start(system, 0)
+    target = comp.coefficients(np.array([[0.7, 1.3]]))
+    target = (target / np.abs(target).max(axis=2, keepdims=True)).astype(complex)
+    hom = homotopy._line(comp.table, start.chart, target, start.cstar[None])
+    group = np.zeros(len(start.roots), dtype=int)
+    end, state, cycle, _ = homotopy._track(hom, start.roots, group, homotopy._NORMAL)
+    xs = end[:, 1] / end[:, 0]
+    triple = np.abs(xs - 0.7) < 1e-3
+    assert len(start.roots) == 4 and triple.sum() == 3
+    assert (state == homotopy._DONE).all()
+    assert (cycle[triple] == 3).all() and (cycle[~triple] <= 1).all()
+    np.testing.assert_allclose(xs[triple].real, 0.7, atol=1e-10)
+    np.testing.assert_allclose(xs[triple].imag, 0.0, atol=1e-10)
+    np.testing.assert_allclose(xs[~triple], -1.3, atol=1e-12)
+
+
+def test_along_line_matches_sympy_substitution():
+    # coefficients polynomial in the parameters: c(p_t + s (p_h - p_t)) as a polynomial
+    # in s must equal sympy's evaluation of each coefficient at that point (reference
+    # library: sympy), for complex s off the nodes used to build it
+    from poise.equilibria.parameter_path import along_line, parameter_family
+
+    exprs = [[a**2 * b - 3 * c, sympy.Integer(2), a * b * c + b**3], [c - a, sympy.Integer(0), 5 * a * c**2]]
+    family = parameter_family((a, b, c), exprs)
+    assert family is not None and family.degree == 3
+    rng = np.random.default_rng(8)
+    target = rng.uniform(-2, 2, size=(3, 3))
+    start = rng.normal(size=(3, 3)) + 1j * rng.normal(size=(3, 3))
+    C = along_line(family, target, start)
+    for s in (0.3 + 0.4j, -1.7, 2.5j):
+        got = (C * s ** np.arange(C.shape[-1])).sum(axis=-1)
+        for row in range(3):
+            point = dict(zip((a, b, c), target[row] + s * (start[row] - target[row])))
+            want = np.array([[complex(sympy.N(e.subs(point))) for e in line] for line in exprs])
+            np.testing.assert_allclose(got[row], want, rtol=1e-12, atol=1e-12)
+    assert parameter_family((a, b), [[sympy.sqrt(a) * b]]) is None  # not polynomial
+
+
+def test_parameter_lines_track_fewer_paths_and_match_closed_form():
+    # x^2 + a x y + b = 0 and x^2 + a x y + y + c = 0: subtracting, y = b - c, then
+    # x^2 + a (b - c) x + b = 0 (hand elimination): 2 roots, while a generic system with
+    # these monomials has 3 (the third path would diverge at every parameter set).
+    system = polynomial_form([x**2 + a * x * y + b, x**2 + a * x * y + y + c], [x, y], [a, b, c])
+    rng = np.random.default_rng(21)
+    def draw(size):
+        return np.column_stack([rng.uniform(0.5, 2, size), rng.uniform(-2, 2, size), rng.uniform(-2, 2, size)])
+    hubs, params = draw(32), draw(500)
+    assert generic_root_count(system) == 3
+    assert homotopy.paths_per_set(system, hubs) == 2
+    result = solve_batch(system, params, hubs=hubs)
+    assert (result.status == 0).all()
+    checked = 0
+    for i, (av, bv, cv) in enumerate(params):
+        xs, bad = _real_roots([1.0, av * (bv - cv), bv])  # reference library: numpy.roots
+        if bad:
+            continue
+        got = _found(result, i)
+        assert len(got) == len(xs), (av, bv, cv)
+        np.testing.assert_allclose(got[:, 0], xs, rtol=1e-9, atol=1e-9)
+        np.testing.assert_allclose(got[:, 1], bv - cv, rtol=1e-9, atol=1e-9)
+        checked += 1
+    assert checked > 480 and result.count.max() == 2 and result.count.min() == 0
+    part = solve_batch(system, params[100:110], hubs=hubs)  # independent of the batch
+    np.testing.assert_array_equal(part.roots, result.roots[100:110, :part.roots.shape[1]])

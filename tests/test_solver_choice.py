@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from poise.api import run_study
-from poise.equilibria.choice import choose_method
+from poise.equilibria.choice import ACCEPTABLE_SPEED, EVALUATION_COST, choose, choose_method
 from poise.model import compile_model
 from poise.study.loader import load_study
 
@@ -38,14 +38,29 @@ COMPETITION = """
 """
 
 
-def test_auto_runs_newton_and_homotopy_is_refused_for_non_rational_models(tmp_path):
+def test_auto_chooses_by_counted_work_and_homotopy_is_refused_for_non_rational_models(tmp_path):
+    # design requirement: "auto" takes homotopy exactly when its predicted throughput
+    # (counted work on a fixed probe design) is at least half of Newton's; the choice
+    # is reproducible and recorded in summary.json with the numbers behind it
     rational = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver=""), "a.toml"))
-    assert choose_method(rational, compile_model(rational)) == "newton"
+    model = compile_model(rational)
+    method, estimate = choose(rational, model)
+    assert estimate is not None and estimate.newton_iterations > 0 and estimate.homotopy_evaluations > 0
+    assert estimate.predicted_speed == pytest.approx(
+        estimate.newton_iterations / (EVALUATION_COST * estimate.homotopy_evaluations))
+    assert (method == "homotopy") == (estimate.predicted_speed >= ACCEPTABLE_SPEED)
+    assert choose(rational, compile_model(rational)) == (method, estimate)
+    run = run_study(rational, tmp_path / "auto", jobs=1, report=False).summary["solver"]
+    assert run["method"] == method and run["requested"] == "auto"
+    assert run["choice"]["predicted_speed"] == round(estimate.predicted_speed, 3)
+
     forced = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver='method = "homotopy"'), "d.toml"))
-    assert choose_method(forced, compile_model(forced)) == "homotopy"
+    assert choose(forced, compile_model(forced)) == ("homotopy", None)
+    newton = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver='method = "newton"'), "e.toml"))
+    assert choose_method(newton, compile_model(newton)) == "newton"
     transcendental = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver="").replace(
         'x = "x*(r1 - x - a12*y)"', 'x = "x*(r1 - exp(x) - a12*y)"'), "b.toml"))
-    assert choose_method(transcendental, compile_model(transcendental)) == "newton"
+    assert choose(transcendental, compile_model(transcendental)) == ("newton", None)
     forced = write_study(tmp_path, COMPETITION.format(size=8, solver='method = "homotopy"').replace(
         'x = "x*(r1 - x - a12*y)"', 'x = "x*(r1 - exp(x) - a12*y)"'), "c.toml")
     status, _, err = run_cli("check", str(forced))

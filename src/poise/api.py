@@ -101,7 +101,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
     chunk_size : parameter sets per chunk (default ``[run] chunk_size``).
     report : write report.md, report.html, tables and figures.
     """
-    from poise.equilibria.choice import choose_method
+    from poise.equilibria.choice import choose
     from poise.model import compile_model
     from poise.sampling import make_design, map_to_parameters
 
@@ -119,7 +119,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
                          sobol_indices=sobol, second_order=study.sensitivity.second_order)
     params = map_to_parameters(design, study.uncertain)
     model = compile_model(study)
-    method = choose_method(study, model)
+    method, estimate = choose(study, model)
 
     manifest = _prepare_directory(directory, study, design.n_rows, chunk_size, resume)
     manifest.update(solver=method, design=study.sampling.design)
@@ -134,7 +134,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         samples[name] = params[:, j]
     outcomes, tallies = assemble(directory, manifest, samples)
     summary = _summary(study, outcomes, tallies, design, sobol)
-    summary["solver"] = _solver_summary(study, model, method, outcomes, params)
+    summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params)
     write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
     manifest.update(complete=True, seconds=round(time.time() - started, 3))
     write_manifest(directory, manifest)
@@ -163,13 +163,17 @@ def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool)
     }
 
 
-def _solver_summary(study: Study, model, method: str, outcomes: pd.DataFrame, params: np.ndarray) -> dict:
-    """Which finder ran and, for multistart Newton, how often it missed a steady state
-    on a re-solved random subsample (homotopy is complete with probability one)."""
+def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.DataFrame,
+                    params: np.ndarray) -> dict:
+    """Which finder ran, why (for "auto": the work estimate), and, for multistart
+    Newton, how often it missed a steady state on a re-solved random subsample
+    (homotopy is complete with probability one)."""
     from poise.analysis.completeness import completeness_check
     from poise.equilibria.choice import polynomial_system
 
-    entry = {"method": method}
+    entry = {"method": method, "requested": study.solver.method}
+    if estimate is not None:
+        entry["choice"] = estimate.as_dict()
     if method == "newton":
         reference = "homotopy" if polynomial_system(model) is not None else "newton"
         entry["completeness"] = completeness_check(study, model, outcomes, params, reference,

@@ -37,7 +37,7 @@ def describe_model(study: Study) -> dict:
 
 def describe_text(study: Study, description: dict) -> str:
     """A readable summary for the terminal."""
-    from poise.equilibria.choice import choose_method
+    from poise.equilibria.choice import choose_method, polynomial_system
     from poise.model import compile_model
 
     lines = [f"study       {study.title}", f"file        {study.path}", ""]
@@ -56,7 +56,12 @@ def describe_text(study: Study, description: dict) -> str:
     for name, dist in study.uncertain.items():
         lines.append(f"  {name:<{pwidth}}  uncertain  {dist.describe()}  (nominal {dist.nominal:g})")
     model = compile_model(study)
-    lines += ["", f"solver      {choose_method(study, model)}",
+    if study.solver.method == "auto":  # decided when a run starts, from counted work
+        solver = ("auto: homotopy or Newton, chosen at the start of a run" if polynomial_system(model)
+                  else "auto: Newton (the model is not polynomial after clearing denominators)")
+    else:
+        solver = choose_method(study, model)
+    lines += ["", f"solver      {solver}",
               f"design      {study.sampling.design}, N = {study.sampling.size}, seed {study.sampling.seed}",
               f"sets        {parameter_sets(study)}"
               + (f"  (N x ({'2k' if study.sensitivity.second_order else 'k'} + 2) for Sobol indices, "

@@ -1,16 +1,24 @@
 """Which steady-state finder a study uses.
 
 Homotopy continuation finds every isolated root of a polynomial system with
-probability one. Its speed relative to batched multistart Newton depends on the model
-(benchmarks/bench_homotopy.py: 0.2x to 8x on the bundled studies), and no cheap,
-reproducible test tells in advance which is faster: a choice by timing could differ
-between two runs of one study. So "auto" runs Newton, and every Newton run re-solves
-a random subsample by homotopy (where the model qualifies) to report how often a
-steady state was missed. "homotopy" asks for continuation on every set.
+probability one; multistart Newton can miss steady states with thin basins. "auto"
+prefers homotopy when the model qualifies and homotopy is not much slower: its
+predicted throughput is at least half of Newton's.
+
+The prediction compares *counted work*, not time, so two runs of one study always
+choose alike, on any machine and with any number of workers. Both finders solve the
+same fixed probe design (64 Sobol points over the study's distributions): Newton's
+iterations per set (over all starts and deflation rounds) against the homotopy's
+evaluations per set, an evaluation counted as `EVALUATION_COST` Newton iterations.
+That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.0 on the bundled
+studies (a homotopy evaluation is complex, in homogeneous coordinates, one path at a
+time, and carries the per-set polishing); with 3, the rule picks the faster method on
+every bundled study. "newton" and "homotopy" force a method.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from functools import lru_cache
 
 from poise.equilibria.polynomial import PolynomialSystem, polynomial_form
@@ -18,6 +26,28 @@ from poise.errors import InputError
 from poise.model import CompiledModel
 from poise.study.spec import Study
 
+EVALUATION_COST = 3.0   # Newton iterations one homotopy evaluation is worth
+ACCEPTABLE_SPEED = 0.5  # homotopy's predicted throughput relative to Newton's, at least
+PROBE_SETS = 64
+PROBE_SEED = 2          # the hubs use seed 1: the probe sets are other points
+
+
+@dataclass(frozen=True)
+class WorkEstimate:
+    """Counted work per parameter set on the probe design, and the predicted ratio of
+    homotopy's throughput to Newton's."""
+
+    newton_iterations: float
+    homotopy_evaluations: float
+    predicted_speed: float
+
+    def as_dict(self) -> dict:
+        return {"rule": f"homotopy when its predicted throughput is at least {ACCEPTABLE_SPEED:g} of "
+                        f"Newton's (work counted on {PROBE_SETS} probe sets, one homotopy "
+                        f"evaluation = {EVALUATION_COST:g} Newton iterations)",
+                "newton_iterations_per_set": round(self.newton_iterations, 1),
+                "homotopy_evaluations_per_set": round(self.homotopy_evaluations, 1),
+                "predicted_speed": round(self.predicted_speed, 3)}
 
 
 def polynomial_system(model: CompiledModel) -> PolynomialSystem | None:
@@ -33,10 +63,45 @@ def _polynomial(rhs, states, params):
 
 
 def choose_method(study: Study, model: CompiledModel) -> str:
-    """"newton" or "homotopy", from `[solver] method` ("auto" is Newton; see above)."""
-    if study.solver.method != "homotopy":
-        return "newton"
-    if polynomial_system(model) is None:
-        raise InputError("homotopy needs right-hand sides that are polynomial (or rational) in the states; "
-                         "use method = \"auto\" or \"newton\"", file=str(study.path), table="solver", key="method")
-    return "homotopy"
+    """"newton" or "homotopy", from `[solver] method` (see the module doc for "auto")."""
+    return choose(study, model)[0]
+
+
+def choose(study: Study, model: CompiledModel) -> tuple[str, WorkEstimate | None]:
+    """The method and, for "auto" on a qualifying model, the work estimate behind it."""
+    method = study.solver.method
+    if method == "newton":
+        return "newton", None
+    system = polynomial_system(model)
+    if method == "homotopy":
+        if system is None:
+            raise InputError("homotopy needs right-hand sides that are polynomial (or rational) in the "
+                             "states; use method = \"auto\" or \"newton\"",
+                             file=str(study.path), table="solver", key="method")
+        return "homotopy", None
+    estimate = None if system is None else work_estimate(study, model, system)
+    if estimate is not None and estimate.predicted_speed >= ACCEPTABLE_SPEED:
+        return "homotopy", estimate
+    return "newton", estimate
+
+
+def work_estimate(study: Study, model: CompiledModel, system: PolynomialSystem) -> WorkEstimate | None:
+    """Both finders' counted work on the probe design; None when nothing varies or a
+    varying parameter has no distribution (no hubs, no probe design)."""
+    from poise.equilibria.continuation import SEED, hub_parameters
+    from poise.equilibria.finder import newton_work
+    from poise.equilibria.homotopy import solve_batch
+
+    if not model.varying:
+        return None
+    hubs = hub_parameters(study.uncertain, model.varying)
+    probe = hub_parameters(study.uncertain, model.varying, count=PROBE_SETS, seed=PROBE_SEED)
+    if hubs is None or probe is None:
+        return None
+    settings = study.solver
+    newton = newton_work(model.kernels, probe, model.magnitude(probe), model.domain_low, model.domain_high,
+                         starts=settings.starts, deflation_rounds=settings.deflation_rounds,
+                         max_iterations=settings.max_iterations)
+    homotopy = float(solve_batch(system, probe, seed=SEED, hubs=hubs).evaluations.mean())
+    speed = newton / max(EVALUATION_COST * homotopy, 1e-300)
+    return WorkEstimate(newton_iterations=newton, homotopy_evaluations=homotopy, predicted_speed=speed)

@@ -148,6 +148,21 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
         to the set's scale) of zero are exactly zero. A set where f and J cannot be
         evaluated at any start has ok False and a reason.
     """
+    return _find(kernels, params, magnitude, domain_low, domain_high, starts, deflation_rounds,
+                 max_iterations)[0]
+
+
+def newton_work(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray,
+                domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
+    """Mean Newton iterations per parameter set that `find_steady_states` spends (over
+    all starts and deflation rounds): a machine-independent measure of its work."""
+    _, solve = _find(kernels, params, magnitude, domain_low, domain_high, **settings)
+    return solve.iterations / max(1, params.shape[0])
+
+
+def _find(kernels, params, magnitude, domain_low, domain_high, starts=0, deflation_rounds=2,
+          max_iterations=60):
+    """`find_steady_states` and the solver it used (which counts iterations)."""
     batch, n = params.shape[0], kernels.n
     scale = state_scales(kernels, params, magnitude)                            # (B, n)
     free_columns = np.asarray(kernels.free_columns, dtype=int)
@@ -156,7 +171,7 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
         root_owner, root_x = np.arange(batch), np.zeros((batch, 0))
         evaluable = np.isfinite(kernels.full_states(root_x, params)).all(axis=1)
         return _found(kernels, params, scale, domain_low, domain_high, root_owner[evaluable],
-                      root_x[evaluable], evaluable)
+                      root_x[evaluable], evaluable), _Solver(kernels, params, scale, max_iterations)
     solve = _Solver(kernels, params, scale, max_iterations)
 
     grid = start_points(n, free_low < 0, starts)
@@ -179,7 +194,7 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
         searching[sets] = roots.count[sets] > before
 
     root_owner, root_x = _verified(kernels, roots, params, scale)
-    return _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable)
+    return _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable), solve
 
 
 def _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, evaluable) -> FoundStates:
@@ -278,6 +293,7 @@ class _Solver:
         self.param_rows = np.ascontiguousarray(params.T)
         self.scale_rows = np.ascontiguousarray(scale.T)
         self.max_iterations = max_iterations
+        self.iterations = 0  # Newton iterations over all starts so far
 
     def run(self, sets, x0, valid=None, roots=None, plain=None):
         """Starts x0 (S, C, n) for `sets` (S,), where `valid` (S, C) if given, deflating
@@ -298,6 +314,7 @@ class _Solver:
         start = np.ascontiguousarray((x0.reshape(-1, n) if valid is None else x0.reshape(-1, n)[slots]).T)
         result = newton(self.kernels, start, self.param_rows[:, owner], self.scale_rows[:, owner],
                         self.max_iterations, **deflation)
+        self.iterations += int(result.iterations.sum())
         x = np.zeros((count * width, n))
         x[slots] = result.x.T
         converged = np.zeros(count * width, bool)

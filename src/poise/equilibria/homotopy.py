@@ -101,12 +101,16 @@ class HomotopyResult:
         identically (no roots reported).
     message : ndarray of str, shape (B,)
         Reason when ``status != 0``, else ``""``.
+    evaluations : ndarray of int, shape (B,)
+        Evaluations of the homotopy and its derivatives spent on each set's paths: a
+        machine-independent measure of the work (`poise.equilibria.choice` uses it).
     """
 
     roots: np.ndarray
     count: np.ndarray
     status: np.ndarray
     message: np.ndarray
+    evaluations: np.ndarray
 
 
 def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
@@ -154,9 +158,10 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     counts = np.zeros(batch, dtype=int)
     status = np.zeros(batch, dtype=int)
     message = np.full(batch, "", dtype=object)
+    evaluations = np.zeros(batch, dtype=np.int64)
     for lo in range(0, batch, per_chunk):
         hi = min(batch, lo + per_chunk)
-        roots, counts[lo:hi], status[lo:hi], message[lo:hi] = _solve_chunk(
+        roots, counts[lo:hi], status[lo:hi], message[lo:hi], evaluations[lo:hi] = _solve_chunk(
             _compile(system), start, values[lo:hi], hub_start)
         found.append(roots)
 
@@ -167,13 +172,24 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
         out[lo:lo + len(roots), :roots.shape[1]] = roots
         lo += len(roots)
     return HomotopyResult(roots=out, count=counts, status=status,
-                          message=message.astype(str))
+                          message=message.astype(str), evaluations=evaluations)
 
 
 def generic_root_count(system: PolynomialSystem, *, seed: int = 0) -> int:
     """Number of paths tracked per parameter set: the isolated roots of a generic member
     of the family of systems with the same monomials (at most ``system.path_count``)."""
     return len(_start(system, seed).roots)
+
+
+def paths_per_set(system: PolynomialSystem, hubs: np.ndarray | None = None, *, seed: int = 0) -> int:
+    """Number of paths tracked per parameter set with these hubs: the generic root count,
+    or fewer when the hubs are points of the model's own parameter family (see
+    `poise.equilibria.parameter_path`)."""
+    if hubs is None:
+        return generic_root_count(system, seed=seed)
+    hubs = np.ascontiguousarray(hubs, dtype=float).reshape(-1, len(system.params))
+    found = _hub_start(system, seed, hubs.tobytes(), hubs.shape[0])
+    return found.roots.shape[1] if len(found.roots) else generic_root_count(system, seed=seed)
 
 
 # --------------------------------------------------------------------------- kernels
@@ -336,8 +352,8 @@ _DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
 
 def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
-    """Track every path from s = 1 to s = 0; returns endpoints, path states and cycle
-    numbers.
+    """Track every path from s = 1 to s = 0; returns endpoints, path states, cycle
+    numbers and evaluations per path.
 
     A path ends ``_DONE`` (reached s = 0, by plain steps or by the endgame, which then
     reports its cycle number >= 1), ``_STALLED`` (steps collapsed close to s = 0 after
@@ -385,9 +401,10 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
     group starts from. A group with more has probably had a path jump onto a path that
     diverges (a lost root, invisible to the duplicate test); its infinite paths are
     tracked again with the first tighter setting.
-    Returns endpoints, states, condition numbers and a flag for unresolved jumps.
+    Returns endpoints, states, condition numbers, a flag for unresolved jumps and the
+    evaluations each path took (all its tracking rounds).
     """
-    end, state, cycle = _track(hom, X, group, _NORMAL)
+    end, state, cycle, work = _track(hom, X, group, _NORMAL)
     end, cond = _finish(hom, end, state, cycle, group)
     for round_, cfg in enumerate(_RETRACK):
         redo = (state == _FAILED) | _duplicates(end, state, cond, cycle, per_group)
@@ -397,18 +414,20 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
             redo |= infinite & extra[group]
         if not redo.any():
             break
-        e, st, cy = _track(hom, X[redo], group[redo], cfg)
+        e, st, cy, w = _track(hom, X[redo], group[redo], cfg)
         end[redo], cond[redo] = _finish(hom, e, st, cy, group[redo])
         state[redo], cycle[redo] = st, cy
-    return end, state, cond, _duplicates(end, state, cond, cycle, per_group)
+        work[redo] += w
+    return end, state, cond, _duplicates(end, state, cond, cycle, per_group), work
 
 
 def _finish(hom, end, state, cycle, group):
     """Newton at s = 0: a few steps for clean endpoints, many for stalled (singular)
-    ones, none for an endgame's estimate at infinity (Newton has nothing to converge to
-    at a singular point at infinity and could only move it)."""
-    at_infinity = (cycle > 0) & ~_finite(end)
-    budget = np.select([at_infinity, state == _DONE, state == _STALLED], [0, 4, 60], 0)
+    ones, none for the endgame's estimates at infinity or with cycle number >= 2
+    (singular points: there Newton converges linearly at best, and once the residual is
+    rounding noise its steps are noise divided by a vanishing derivative)."""
+    keep = ((cycle > 0) & ~_finite(end)) | (cycle > 1)
+    budget = np.select([keep, state == _DONE, state == _STALLED], [0, 4, 60], 0)
     return _refine(hom, end, group, budget)
 
 
@@ -578,7 +597,7 @@ def _start(system: PolynomialSystem, seed: int) -> _Start:
         gamma = np.exp(2j * np.pi * rng.random())
         hom = _line(table, chart, target[None], gamma * start_coef[None])
         group = np.zeros(len(X), dtype=int)
-        end, state, cond, jumped = _track_all(hom, X, group, per_group=len(X))
+        end, state, cond, jumped, _ = _track_all(hom, X, group, per_group=len(X))
         finite = _finite(end)
         keep = (state == _DONE) & finite & (cond < _SINGULAR)
         found.append(end[keep])
@@ -718,7 +737,7 @@ def _roots_at(comp: _Compiled, start: _Start, coef: np.ndarray, keep_partial: bo
     R, nv = start.roots.shape
     hom = _line(comp.table, start.chart, coef, start.cstar[None])
     group = np.repeat(np.arange(len(coef)), R)
-    end, state, cond, jumped = _track_all(hom, np.tile(start.roots, (len(coef), 1)), group, R)
+    end, state, cond, jumped, _ = _track_all(hom, np.tile(start.roots, (len(coef), 1)), group, R)
     finite = _finite(end)
     good = (state == _DONE) & finite & (cond < _SINGULAR) & ~jumped
     if keep_partial:
@@ -733,7 +752,7 @@ def _diverging(hom: _Homotopy, roots: np.ndarray) -> np.ndarray:
     """Paths per group that end at infinity, tracking ``roots`` (G, R, n+1) along ``hom``."""
     G, R, nv = roots.shape
     group = np.repeat(np.arange(G), R)
-    end, _, _, _ = _track_all(hom, roots.reshape(-1, nv), group, R)
+    end = _track_all(hom, roots.reshape(-1, nv), group, R)[0]
     return np.bincount(group[~_finite(end)], minlength=G)
 
 
@@ -758,7 +777,7 @@ def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
 
 
 def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs | None):
-    """Roots (b, R, n), counts, status and messages for one chunk of parameter sets."""
+    """Roots (b, R, n), counts, status, messages and evaluations for one chunk of sets."""
     b, n = values.shape[0], comp.n
     status = np.zeros(b, dtype=int)
     message = np.full(b, "", dtype=object)
@@ -780,7 +799,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         status[sets] = 1
         message[sets] = "the generic start system lost paths; steady states may be missing"
     if R == 0 or sets.size == 0:
-        return np.full((b, 0, n), np.nan), np.zeros(b, dtype=int), status, message
+        return np.full((b, 0, n), np.nan), np.zeros(b, dtype=int), status, message, np.zeros(b, np.int64)
 
     # scale each equation to unit largest coefficient: same roots, better-balanced path
     target = coef[sets]
@@ -802,7 +821,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         hom = _line(comp.table, start.chart, C0, start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
     group = np.repeat(np.arange(sets.size), R)
-    end, state, cond, jumped = _track_all(hom, X, group, per_group=R, expected_infinite=expected)
+    end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R, expected_infinite=expected)
 
     failed = np.bincount(group[state == _FAILED], minlength=sets.size)
     jumps = np.bincount(group[jumped], minlength=sets.size)
@@ -831,7 +850,9 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     out[sets] = roots
     all_counts = np.zeros(b, dtype=int)
     all_counts[sets] = counts
-    return out, all_counts, status, message
+    all_work = np.zeros(b, dtype=np.int64)
+    all_work[sets] = np.bincount(group, weights=work, minlength=sets.size).astype(np.int64)
+    return out, all_counts, status, message, all_work
 
 
 def _flag(status, message, mask, text):

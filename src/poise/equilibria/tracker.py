@@ -216,11 +216,11 @@ def _velocity(P, s, x, W, J, vel):
 
 
 @njit(cache=True)
-def _step(P, W, J, V, s, s_new, inv_w, beta, tol, newton_steps):
+def _step(P, W, J, V, s, s_new, inv_w, beta, tol, newton_steps, tally):
     """One predictor-corrector step from (V[0] = x, V[1] = v) at s to s_new (complex).
 
     The result goes to V[2] (point) and V[3] (velocity). Returns (converged, first
-    correction relative to |X|). V[4:] are scratch.
+    correction relative to |X|). V[4:] are scratch; tally[0] counts evaluations.
     """
     x, v, xc, vc, k, tmp, dx = V[0], V[1], V[2], V[3], V[4], V[7], V[8]
     nv = x.shape[0]
@@ -229,6 +229,7 @@ def _step(P, W, J, V, s, s_new, inv_w, beta, tol, newton_steps):
     for j in range(nv):
         k[j] = v[j]
         xc[j] = v[j]
+    tally[0] += 3
     for stage in range(3):
         frac = 1.0 if stage == 2 else 0.5
         for j in range(nv):
@@ -240,6 +241,7 @@ def _step(P, W, J, V, s, s_new, inv_w, beta, tol, newton_steps):
         xc[j] = x[j] + ds / 6.0 * xc[j]
     first = np.inf
     for it in range(newton_steps):
+        tally[0] += 1
         if not _newton_velocity(P, s_new, xc, W, J, dx, vc):
             return False, first
         for j in range(nv):
@@ -267,7 +269,7 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
     (reached sb), ACTIVE (stopped for the endgame), STALLED / FAILED (steps collapsed
     near / away from s = 0, or out of steps).
     """
-    inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop = settings
+    inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop, tally = settings
     x, v, xc, vc = V[0], V[1], V[2], V[3]
     length = abs(sb - sa)
     t = 0.0
@@ -277,7 +279,8 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
         if (1.0 - t_new) * length <= s_stop:
             t_new = 1.0
         s = sa + t * (sb - sa)
-        converged, first = _step(P, W, J, V, s, sa + t_new * (sb - sa), inv_w, beta, tol, newton_steps)
+        converged, first = _step(P, W, J, V, s, sa + t_new * (sb - sa), inv_w, beta, tol, newton_steps,
+                                 tally)
         factor = 0.5
         if first > 0 and np.isfinite(first):
             factor = 0.8 * (beta / first) ** 0.2
@@ -309,10 +312,11 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
 
 
 @njit(cache=True)
-def _polish(P, W, J, V, s, inv_w):
+def _polish(P, W, J, V, s, inv_w, tally):
     """Newton at fixed s on V[0] until the correction is below 1e-12 |X| (4 steps at most)."""
     x, dx, tmp = V[0], V[8], V[7]
     for _ in range(4):
+        tally[0] += 1
         if not _newton_velocity(P, s, x, W, J, dx, tmp):
             return
         for j in range(x.shape[0]):
@@ -365,7 +369,7 @@ def _cauchy(P, W, J, V, E, r, settings):
     M = _EG_SAMPLES
     for rnd in range(_EG_ROUNDS):
         E[3, 0] = r
-        _polish(P, W, J, V, complex(r, 0.0), inv_w)
+        _polish(P, W, J, V, complex(r, 0.0), inv_w, settings[7])
         for j in range(nv):
             start[j] = x[j]
             home_v[j] = v[j]
@@ -421,9 +425,10 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
                 newton_steps, max_steps, s_stop):
     """Track every row of X0 from s = 1 to s = 0.
 
-    Returns endpoints (N, nv), states (N,) int8 (DONE / FAILED / STALLED) and cycle
-    numbers (N,) int8: 0 for a path that reached s = 0 by plain steps, c >= 1 for one
-    whose end point the endgame computed.
+    Returns endpoints (N, nv), states (N,) int8 (DONE / FAILED / STALLED), cycle
+    numbers (N,) int8 (0 for a path that reached s = 0 by plain steps, c >= 1 for one
+    whose end point the endgame computed) and the evaluations of H and its derivatives
+    each path took (N,) int64: a measure of work that does not depend on the machine.
     """
     N, nv = X0.shape
     W = _work(exps)
@@ -431,18 +436,22 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
     E = np.empty((5, nv), dtype=np.complex128)
     J = np.empty((nv, nv), dtype=np.complex128)
     inv_w = 1.0 / weight ** 2
-    settings = (inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop)
+    tally = np.zeros(1, dtype=np.int64)
+    settings = (inv_w, h_max, beta, tol, newton_steps, max_steps, s_stop, tally)
     out = np.empty((N, nv), dtype=np.complex128)
     state = np.zeros(N, dtype=np.int8)
     cycle = np.zeros(N, dtype=np.int8)
+    evaluations = np.zeros(N, dtype=np.int64)
     x, v = V[0], V[1]
     for p in range(N):
+        tally[0] = 1
         P = (exps, live, C[group[p]], chart)
         for j in range(nv):
             x[j] = X0[p, j]
         if not _newton_velocity(P, 1.0 + 0j, x, W, J, V[8], v):
             state[p] = FAILED
             out[p] = x
+            evaluations[p] = 1
             continue
         s, h, trigger = 1.0, h_init, True
         while True:
@@ -463,7 +472,8 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
             h = 0.1
         state[p] = st
         out[p] = x
-    return out, state, cycle
+        evaluations[p] = tally[0]
+    return out, state, cycle, evaluations
 
 
 @njit(cache=True)
