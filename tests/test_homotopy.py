@@ -320,6 +320,16 @@ def test_paths_diverging_at_every_target_give_no_roots():
     assert (result.count == 0).all() and (result.status == 0).all()
 
 
+def test_a_line_of_roots_is_flagged_rather_than_reported_as_no_roots():
+    # a y - b x = 0 (twice): every point of the line b x = a y is a root, none is
+    # isolated (hand calculation). The path lands on a complex point of the line; the
+    # set must be flagged (the caller then solves it by Newton and reports a continuum).
+    system = polynomial_form([a * y - b * x, b * x - a * y], [x, y], [a, b])
+    result = solve_batch(system, np.array([[1.0, 2.0], [0.5, 0.3]]))
+    assert (result.status == 1).all()
+    assert all("continuum" in text for text in result.message)
+
+
 def test_generic_root_count_is_below_total_degree_for_toggle_switch():
     # the eliminated polynomial of the Hill-3 toggle has degree 3*3 + 1 = 10 (see above),
     # the Bezout bound of the cleared system is 4 * 4 = 16

@@ -217,10 +217,12 @@ CIRCLE = """
 """
 
 
-def test_steady_states_on_a_continuum_are_reported_as_such(tmp_path):
+@pytest.mark.parametrize("method", ["newton", "homotopy"])
+def test_steady_states_on_a_continuum_are_reported_as_such(tmp_path, method):
     # closed form: f = (x, y)·(x² + y² − R) vanishes on the whole circle x² + y² = R
-    # (a curve of steady states) and at the isolated origin.
-    equilibria = steady_states(tmp_path, CIRCLE)
+    # (a curve of steady states) and at the isolated origin. Homotopy paths land on
+    # complex points of the circle; such a set is handed to Newton, which reports it.
+    equilibria = steady_states(tmp_path, CIRCLE.replace('"newton"', f'"{method}"'))
     origin = [eq for eq in equilibria if eq["state"] == {"x": 0.0, "y": 0.0}]
     assert len(origin) == 1 and not origin[0]["continuum"]
     assert origin[0]["class"] == "stable node"   # J = -R·I at the origin

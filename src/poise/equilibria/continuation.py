@@ -31,10 +31,11 @@ HUB_COUNT = 64  # more hubs shorten paths a little more but cost a longer set-up
 def hub_parameters(distributions: Mapping[str, Distribution], names: Sequence[str],
                    count: int = HUB_COUNT, seed: int = HUB_SEED) -> np.ndarray | None:
     """``count`` parameter sets spread over the study's distributions (a scrambled Sobol
-    design with a fixed seed), from which the homotopy starts its paths; None when a
-    name has no distribution (then every path starts at the generic start system)."""
+    design with a fixed seed), from which the homotopy starts its paths; None when
+    nothing varies or a name has no distribution (then every path starts at the
+    generic start system)."""
     names = tuple(names)
-    if any(name not in distributions for name in names):
+    if not names or any(name not in distributions for name in names):
         return None
     design = make_design(names, "sobol", count, seed=seed, sobol_indices=False)
     return map_to_parameters(design, distributions)

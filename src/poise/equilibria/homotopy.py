@@ -96,7 +96,9 @@ class HomotopyResult:
         Number of real roots found for each set.
     status : ndarray of int, shape (B,)
         0 ok; 1 some paths failed or jumped (or the once-per-system start solve lost
-        paths), so roots may be missing; 2 the system could not be evaluated at this
+        paths), so roots may be missing, or some path ended at a singular point off the
+        real line (a continuum of roots, which has no isolated points to report, or a
+        complex multiple root); 2 the system could not be evaluated at this
         parameter set: non-finite coefficients, an equation or a denominator vanishing
         identically (no roots reported).
     message : ndarray of str, shape (B,)
@@ -149,7 +151,7 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     batch = values.shape[0]
     start = _start(system, seed)
     hub_start = None
-    if hubs is not None:
+    if hubs is not None and m > 0:
         hubs = np.ascontiguousarray(hubs, dtype=float).reshape(-1, m)
         hub_start = _hub_start(system, seed, hubs.tobytes(), hubs.shape[0])
     per_chunk = max(1, _PATHS_PER_CHUNK // max(1, len(start.roots)))
@@ -839,6 +841,14 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         singular = cond >= _SINGULAR
         im_tol = np.where(singular, 1e-4, 1e-7) * (1.0 + np.abs(x).max(axis=1))
         real = finite & np.isfinite(x).all(axis=1) & (np.abs(x.imag).max(axis=1) <= im_tol)
+    # a path ending at a singular point off the real line: a continuum of steady states
+    # (paths land on a generic, complex point of it) or a complex multiple root; the
+    # set is flagged so that the caller can solve it another way
+    odd = np.bincount(group[finite & singular & ~real], minlength=sets.size)
+    for j in np.flatnonzero((odd > 0) & (status[sets] == 0)):
+        status[sets[j]] = 1
+        message[sets[j]] = (f"{odd[j]} of {R} paths ended at a singular point off the real line "
+                            "(a continuum of steady states, or a complex multiple root)")
     cand = np.flatnonzero(real)
     pts, ok, sing = _polish_real(comp.table, x[cand].real, target[group[cand]],
                                  singular[cand])
