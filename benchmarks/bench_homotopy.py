@@ -6,7 +6,9 @@ poise's homotopy (`find_by_homotopy` with the 64 hubs a run uses), side by side.
 truth is the closed form from `bench_throughput.py` (reef, toggle switch, phosphorylation
 cycle); the SBML enzyme reactor has none, so there the two methods are compared with each
 other. Rates are the best of ``--repeat`` runs after a warm-up (compilation, start solve
-and hubs are paid once per process and reported separately as "set-up").
+and hubs are paid once per process and reported separately as "set-up"). Each study also gets the counted work behind
+`solver.method = "auto"` (Newton iterations and homotopy evaluations per set), the cost
+of one evaluation in Newton iterations measured here, and what auto picks.
 
 Part 2, two synthetic models with many steady states:
 
@@ -31,6 +33,7 @@ Usage::
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import time
 from dataclasses import dataclass
 from typing import Callable
@@ -39,9 +42,9 @@ import numpy as np
 import sympy
 from scipy.optimize import root
 
-from poise.equilibria.choice import polynomial_system
-from poise.equilibria.continuation import find_by_homotopy, hub_parameters
-from poise.equilibria.finder import find_steady_states
+from poise.equilibria.choice import EVALUATION_COST, choose, polynomial_system
+from poise.equilibria.continuation import SEED, find_by_homotopy, hub_parameters
+from poise.equilibria.finder import find_steady_states, newton_work
 from poise.equilibria.homotopy import generic_root_count, paths_per_set, solve_batch
 from poise.equilibria.polynomial import polynomial_form
 from poise.model import compile_model
@@ -245,6 +248,14 @@ def bundled(sets: int, seed: int, repeat: int) -> None:
         print(f"{'':<16}{'homotopy':<10}{sets / t_hom:>10.0f}{100 * complete[1]:>9.2f}%{t_newton / t_hom:>11.2f}"
               f"  {paths_per_set(system, hubs)} paths/set ({generic_root_count(system)} generic), "
               f"set-up {setup:.2f} s")
+        # counted work behind solver.method = "auto" (poise.equilibria.choice)
+        iterations = newton_work(model.kernels, params, magnitude, *box)
+        evaluations = solve_batch(system, params, seed=SEED, hubs=hubs).evaluations.mean()
+        chosen, estimate = choose(dataclasses.replace(study, solver=dataclasses.replace(study.solver, method="auto")),
+                                  model)
+        print(f"{'':<16}work/set: Newton {iterations:.0f} iterations, homotopy {evaluations:.0f} evaluations; "
+              f"one evaluation costs {(t_hom / evaluations) / (t_newton / iterations):.1f} iterations here "
+              f"(rule: {EVALUATION_COST:g}); auto picks {chosen} (predicted {estimate.predicted_speed:.2f}x)")
     print()
 
 

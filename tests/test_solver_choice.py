@@ -8,6 +8,8 @@ import pytest
 from poise.api import run_study
 from poise.equilibria.choice import ACCEPTABLE_SPEED, EVALUATION_COST, choose, choose_method
 from poise.model import compile_model
+from poise.report import load_run
+from poise.report.content import study_table
 from poise.study.loader import load_study
 
 from helpers import run_cli, write_study
@@ -53,6 +55,8 @@ def test_auto_chooses_by_counted_work_and_homotopy_is_refused_for_non_rational_m
     run = run_study(rational, tmp_path / "auto", jobs=1, report=False).summary["solver"]
     assert run["method"] == method and run["requested"] == "auto"
     assert run["choice"]["predicted_speed"] == round(estimate.predicted_speed, 3)
+    rows = dict(study_table(load_run(tmp_path / "auto")).rows)
+    assert rows["Steady-state solver"].startswith(f"{method} (chosen automatically")
 
     forced = load_study(write_study(tmp_path, COMPETITION.format(size=8, solver='method = "homotopy"'), "d.toml"))
     assert choose(forced, compile_model(forced)) == ("homotopy", None)

@@ -5,15 +5,16 @@ probability one; multistart Newton can miss steady states with thin basins. "aut
 prefers homotopy when the model qualifies and homotopy is not much slower: its
 predicted throughput is at least half of Newton's.
 
-The prediction compares *counted work*, not time, so two runs of one study always
-choose alike, on any machine and with any number of workers. Both finders solve the
+The prediction compares *counted work*, not time, so two runs of one study choose
+alike, with any number of workers (it is made once, before the work is split). Both
+finders solve the
 same fixed probe design (64 Sobol points over the study's distributions): Newton's
 iterations per set (over all starts and deflation rounds) against the homotopy's
 evaluations per set, an evaluation counted as `EVALUATION_COST` Newton iterations.
-That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.0 on the bundled
+That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.4 on the bundled
 studies (a homotopy evaluation is complex, in homogeneous coordinates, one path at a
-time, and carries the per-set polishing); with 3, the rule picks the faster method on
-every bundled study. "newton" and "homotopy" force a method.
+time, and carries the per-set polishing); with 3, the rule picks the method that
+meets the half-speed mark on every bundled study. "newton" and "homotopy" force a method.
 """
 
 from __future__ import annotations

@@ -94,7 +94,13 @@ def study_table(run: RunData) -> Table:
         words = "none"
     rows.append(["Sensitivity analysis", words])
     if m.get("solver"):
-        rows.append(["Steady-state solver", m.get("solver")])
+        solver = m.get("solver")
+        choice = (s.get("solver") or {}).get("choice")
+        if choice:  # "auto": say why
+            solver += (f" (chosen automatically: predicted homotopy speed {choice['predicted_speed']:g}x "
+                       f"Newton's, from {choice['newton_iterations_per_set']:g} Newton iterations vs "
+                       f"{choice['homotopy_evaluations_per_set']:g} homotopy evaluations per probe set)")
+        rows.append(["Steady-state solver", solver])
     check = (s.get("solver") or {}).get("completeness")
     if check and check.get("checked"):
         lo, hi = check["ci95"]
