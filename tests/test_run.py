@@ -187,6 +187,22 @@ def test_sets_that_overflow_are_recorded_as_failed(tmp_path):
     assert summary["claims"]["stable"]["probability"] == 1.0
 
 
+def test_a_run_where_every_set_fails_reports_no_probability(tmp_path):
+    # every q lies above the overflow limit of exp (IEEE 754, as above): no set can be
+    # analysed, so a claim has no estimate (null), not probability 0, and the interval
+    # is the uninformative [0, 1]
+    study = load_study(write_study(tmp_path, OVERFLOW.replace("low = 0, high = 800", "low = 720, high = 800")
+                                   .replace("size = 400", "size = 16")))
+    result = run_study(study, tmp_path / "run", jobs=1, report=True)
+    claim = result.summary["claims"]["stable"]
+    assert result.summary["samples"]["analysed"] == 0
+    assert claim["n"] == 0 and claim["probability"] is None and claim["ci95"] == [0.0, 1.0]
+    assert "P(stable) = n/a" in repr(result)
+    status, out, err = run_cli("run", str(study.path), "--out", str(tmp_path / "cli"), "--quiet")
+    assert status == 1 and "Traceback" not in out + err and "no parameter set could be analysed" in err
+    assert "n/a" in out  # the main table shows no estimate
+
+
 def test_cli_run_prints_the_main_table_and_honours_size_and_seed(tmp_path):
     path = write_study(tmp_path, REEF)
     status, out, err = run_cli("run", str(path), "--out", str(tmp_path / "cli"), "--size", "16",

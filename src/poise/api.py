@@ -11,6 +11,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import platform
+import shlex
 import shutil
 import sys
 import time
@@ -68,7 +69,8 @@ class RunResult:
                  f"independent {samples['independent']}"]
         for name, claim in self.summary["claims"].items():
             lo, hi = claim["ci95"]
-            lines.append(f"  P({name}) = {claim['probability']:.3f}  [{lo:.3f}, {hi:.3f}]")
+            p = claim["probability"]
+            lines.append(f"  P({name}) = {'n/a' if p is None else format(p, '.3f')}  [{lo:.3f}, {hi:.3f}]")
         return "\n".join(lines)
 
 
@@ -248,7 +250,8 @@ def run_from_cli(args) -> int:
                            scheduler=args.scheduler, resume=args.resume, progress=not args.quiet)
     except KeyboardInterrupt:
         print(f"\npoise: interrupted; finished chunks are saved. Continue with:\n"
-              f"  poise run {args.study} --out {out} --resume", file=sys.stderr)
+              f"  poise run {shlex.quote(str(args.study))} --out {shlex.quote(str(out))} --resume",
+              file=sys.stderr)
         return 130
     print(main_table_text(result.directory))
     print(f"\nrun directory: {result.directory}  (report.html, summary.json, tables/, figures/)")

@@ -53,6 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
+    _quiet_threads_after_interrupt()
     try:
         handler = {"check": _check, "inspect": _inspect, "run": _run, "report": _report}[args.command]
         return handler(args)
@@ -62,6 +63,33 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("poise: interrupted", file=sys.stderr)
         return 130
+
+
+def _quiet_threads_after_interrupt() -> None:
+    """After Ctrl-C, let background threads die silently.
+
+    Stopping the worker pool on Ctrl-C tears down the pool's helper threads in this
+    process; one of them can fail on the way (a pipe to a killed worker) and Python
+    would print its traceback after poise's own message. Before an interrupt, thread
+    errors are reported as usual.
+    """
+    import signal
+    import threading
+
+    interrupted = threading.Event()
+    report = threading.excepthook
+
+    def on_interrupt(signum, frame):
+        interrupted.set()
+        raise KeyboardInterrupt
+
+    def on_thread_error(hook_args):
+        if not interrupted.is_set():
+            report(hook_args)
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGINT, on_interrupt)
+        threading.excepthook = on_thread_error
 
 
 def _check(args) -> int:

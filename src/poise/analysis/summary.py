@@ -19,8 +19,10 @@ from poise.analysis.sobol import sobol_indices
 
 
 def _probability(successes: int, n: int) -> dict:
+    """Estimate and 95 % Wilson interval; with no sets the estimate is None (JSON null),
+    not 0, and the interval is the uninformative [0, 1]."""
     lo, hi = wilson_interval(successes, n)
-    return {"probability": successes / n if n else 0.0, "ci95": [float(lo), float(hi)]}
+    return {"probability": successes / n if n else None, "ci95": [float(lo), float(hi)]}
 
 
 def claim_summary(outcomes: pd.DataFrame, claims: Sequence) -> dict:

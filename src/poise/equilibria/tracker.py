@@ -51,6 +51,8 @@ from numba import njit
 # path states (shared with poise.equilibria.homotopy)
 ACTIVE, DONE, FAILED, STALLED = 0, 1, 2, 3
 
+_GROW_EXP, _MAX_GROW, _SHRINK_EXP, _MIN_SHRINK = 0.2, 2.0, 0.2, 0.1  # step control
+
 # endgame: starts once s <= _EG_RADIUS after _EG_STREAK steps below _EG_RATIO * s;
 # _EG_SAMPLES points per turn, at most _EG_CYCLE turns per circle (closed when back to
 # within _EG_CLOSE, relative), radius shrinking by _EG_SHRINK for at most _EG_ROUNDS
@@ -281,11 +283,6 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
         s = sa + t * (sb - sa)
         converged, first = _step(P, W, J, V, s, sa + t_new * (sb - sa), inv_w, beta, tol, newton_steps,
                                  tally)
-        factor = 0.5
-        if first > 0 and np.isfinite(first):
-            factor = 0.8 * (beta / first) ** 0.2
-        elif first == 0:
-            factor = 2.0
         if converged:
             for j in range(x.shape[0]):
                 x[j] = xc[j]
@@ -293,7 +290,8 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
             taken = t_new - t
             before = abs(s)
             t = t_new
-            h = min(h_max, h * min(2.0, max(0.5, factor)))
+            grow = _MAX_GROW if first == 0 else 0.8 * (beta / first) ** _GROW_EXP
+            h = min(h_max, h * min(_MAX_GROW, max(0.5, grow)))
             if t == 1.0:
                 return DONE, t, h
             # short steps not imposed by h_max, several in a row: a singular end point
@@ -303,7 +301,10 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
                 return ACTIVE, t, h
         else:
             # shrink from the step actually tried (h may exceed what was left)
-            h = (t_new - t) * min(0.5, max(0.1, factor))
+            shrink = 0.5
+            if first > 0 and np.isfinite(first):
+                shrink = 0.8 * (beta / first) ** _SHRINK_EXP
+            h = (t_new - t) * min(0.5, max(_MIN_SHRINK, shrink))
             here = abs(sa + t * (sb - sa))
             if h * length < 1e-14 + 1e-9 * here:
                 return (STALLED if here < 1e-4 else FAILED), t, h
