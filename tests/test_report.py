@@ -332,6 +332,18 @@ def test_rewriting_gives_identical_bytes(nasty_run):
         assert path.read_bytes() == before[path], path
 
 
+def test_rewriting_drops_figures_that_no_longer_apply_and_keeps_foreign_files(nasty_run):
+    # design requirement: nothing in figures/ contradicts the report next to it
+    root, written = nasty_run
+    stale = root / "figures" / "sobol_claim99.png"
+    foreign = root / "figures" / "my_notes.png"
+    stale.write_bytes(b"old")
+    foreign.write_bytes(b"mine")
+    write_report(root)
+    assert not stale.exists() and foreign.read_bytes() == b"mine"
+    assert all(p.exists() for p in written)
+
+
 # -- statistics the report computes itself -------------------------------------------
 
 def test_ks_regional_matches_scipy():

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 from pathlib import Path
 
 from . import content
@@ -146,4 +147,22 @@ def write_report(run_dir: str | Path) -> list[Path]:
     doc = assemble(run, tables, captions, claim_stems, state_stem)
     written.append(_write_text(root / "report.md", render_markdown(doc)))
     written.append(_write_text(root / "report.html", render_html(doc, figures_dir)))
+    _drop_stale(figures_dir, written)
     return written
+
+
+# figure files poise writes; others in figures/ are the user's and are left alone
+_OWN_FIGURE = re.compile(r"(claims|stable_count|convergence|steady_states_[a-z_]+|"
+                         r"(sobol|factor_map)_claim\d+)\.(png|svg)")
+
+
+def _drop_stale(figures_dir: Path, written: list[Path]) -> None:
+    """Remove figures of an earlier rendering that this one did not produce (a figure
+    that no longer applies, e.g. after the study's claims changed), so that nothing in
+    figures/ contradicts the report next to it."""
+    if not figures_dir.is_dir():
+        return
+    fresh = {p.resolve() for p in written}
+    for path in figures_dir.iterdir():
+        if _OWN_FIGURE.fullmatch(path.name) and path.resolve() not in fresh:
+            path.unlink()
