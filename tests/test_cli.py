@@ -189,6 +189,12 @@ def test_claim_names_that_collide_with_table_columns_are_refused(tmp_path, name)
     assert status == 2 and "[claims[1]]" in err and "name" in err
 
 
+def test_claim_names_differing_only_in_spaces_are_refused(tmp_path):
+    claims = '\n[[claims]]\nname = "u wins"\nholds = "any(stable)"\n[[claims]]\nname = " u  wins"\nholds = "all(stable)"\n'
+    status, _, err = run_cli("check", str(write_study(tmp_path, GOOD + claims)))
+    assert status == 2 and "[claims[2]]" in err and "already called" in err and "Traceback" not in err
+
+
 def test_out_that_is_a_file_and_absurd_size_exit_2(tmp_path):
     path = write_study(tmp_path, GOOD)
     afile = tmp_path / "afile"

@@ -297,11 +297,13 @@ def _claims(data: dict, states, parameters, where: _Where):
         name, holds = claim.get("name"), claim.get("holds")
         if not isinstance(name, str) or not name.strip():
             raise where.error(table, "name", "expected a non-empty string")
-        if name in RESERVED_COLUMNS:
+        if " ".join(name.split()) in RESERVED_COLUMNS:
             raise where.error(table, "name", f"'{name}' names a column of the run's tables; choose another claim name")
-        if name in seen:
-            raise where.error(table, "name", f"another claim is already called '{name}'")
-        seen.add(name)
+        # names differing only in spaces would print alike in every table and figure
+        if " ".join(name.split()) in seen:
+            raise where.error(table, "name", f"another claim is already called '{name}' "
+                                             "(names that differ only in spaces count as the same)")
+        seen.add(" ".join(name.split()))
         if not isinstance(holds, str):
             raise where.error(table, "holds", "expected a condition string, e.g. \"count(stable) >= 2\"")
         try:
