@@ -31,6 +31,9 @@ EVALUATION_COST = 3.0   # Newton iterations one homotopy evaluation is worth
 ACCEPTABLE_SPEED = 0.5  # homotopy's predicted throughput relative to Newton's, at least
 PROBE_SETS = 64
 PROBE_SEED = 2          # the hubs use seed 1: the probe sets are other points
+# beyond these, even the probe would take long: auto then stays with Newton
+MAX_BEZOUT = 4096       # total-degree bound (paths of the once-per-system start solve)
+MAX_PATHS = 256         # paths per parameter set
 
 
 @dataclass(frozen=True)
@@ -87,13 +90,14 @@ def choose(study: Study, model: CompiledModel) -> tuple[str, WorkEstimate | None
 
 
 def work_estimate(study: Study, model: CompiledModel, system: PolynomialSystem) -> WorkEstimate | None:
-    """Both finders' counted work on the probe design; None when nothing varies or a
-    varying parameter has no distribution (no hubs, no probe design)."""
+    """Both finders' counted work on the probe design; None when nothing varies, a
+    varying parameter has no distribution (no hubs, no probe design), or the system
+    needs more than MAX_BEZOUT start paths or MAX_PATHS paths per set."""
     from poise.equilibria.continuation import SEED, hub_parameters
     from poise.equilibria.finder import newton_work
-    from poise.equilibria.homotopy import solve_batch
+    from poise.equilibria.homotopy import generic_root_count, solve_batch
 
-    if not model.varying:
+    if not model.varying or system.path_count > MAX_BEZOUT or generic_root_count(system, seed=SEED) > MAX_PATHS:
         return None
     hubs = hub_parameters(study.uncertain, model.varying)
     probe = hub_parameters(study.uncertain, model.varying, count=PROBE_SETS, seed=PROBE_SEED)
