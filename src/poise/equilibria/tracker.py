@@ -479,8 +479,9 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
 
 @njit(cache=True)
 def refine_paths(exps, live, chart, C, group, X, budget):
-    """Newton at s = 0 from each row of X (at most ``budget[p]`` steps, stopping once a
-    step is below 1e-15 |X|), and the condition number of each end point's Jacobian.
+    """Newton at s = 0 from each row of X (at most ``budget[p]`` steps, stopping after a
+    step below 1e-11 |X|: Newton converges quadratically, so the error left after such
+    a step is at rounding level), and the condition number of each end point's Jacobian.
 
     The condition number is that of the Jacobian with each polynomial row divided by the
     size its entries can have at this |X| (``sum_k |c_k| deg_k |X|_max**(deg_k - 1)``),
@@ -510,7 +511,7 @@ def refine_paths(exps, live, chart, C, group, X, budget):
                 break
             for j in range(nv):
                 x[j] += dx[j]
-            if _norm(dx) <= 1e-15 * _norm(x):
+            if _norm(dx) <= 1e-11 * _norm(x):
                 break
         out[p] = x
         # row-scaled Jacobian at the end point
