@@ -11,7 +11,7 @@ finders solve the
 same fixed probe design (64 Sobol points over the study's distributions): Newton's
 iterations per set (over all starts and deflation rounds) against the homotopy's
 evaluations per set, an evaluation counted as `EVALUATION_COST` Newton iterations.
-That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.4 on the bundled
+That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.6 on the bundled
 studies (a homotopy evaluation is complex, in homogeneous coordinates, one path at a
 time, and carries the per-set polishing); with 3, the rule picks the method that
 meets the half-speed mark on every bundled study. "newton" and "homotopy" force a method.
