@@ -468,3 +468,17 @@ def test_parameter_lines_track_fewer_paths_and_match_closed_form():
     assert checked > 480 and result.count.max() == 2 and result.count.min() == 0
     part = solve_batch(system, params[100:110], hubs=hubs)  # independent of the batch
     np.testing.assert_array_equal(part.roots, result.roots[100:110, :part.roots.shape[1]])
+
+
+@pytest.mark.parametrize("with_hubs", [False, True])
+def test_a_cluster_of_small_simple_roots_is_not_averaged_by_the_endgame(with_hubs):
+    # (x - a)(x - 2a)(x - 3a)(x + b) with a, b ~ 1e-3: four simple roots close together
+    # (hand calculation). Circles about s = 0 that also enclose the branch points between
+    # them would return their mean with cycle number 4; all four roots must come back.
+    system = polynomial_form([(x - a) * (x - 2 * a) * (x - 3 * a) * (x + b)], [x], [a, b])
+    rng = np.random.default_rng(12)
+    params = np.vstack([[1e-3, 1e-3], rng.uniform(5e-4, 2e-3, size=(80, 2))])
+    hubs = rng.uniform(5e-4, 2e-3, size=(16, 2)) if with_hubs else None
+    result = solve_batch(system, params, hubs=hubs)
+    for i, (av, bv) in enumerate(params):
+        np.testing.assert_allclose(_found(result, i)[:, 0], [-bv, av, 2 * av, 3 * av], rtol=1e-7, atol=1e-12)

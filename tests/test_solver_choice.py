@@ -71,6 +71,22 @@ def test_auto_chooses_by_counted_work_and_homotopy_is_refused_for_non_rational_m
     assert status == 2 and "[solver]" in err and "method" in err
 
 
+def test_a_resumed_run_keeps_the_finder_its_saved_chunks_used(tmp_path):
+    # design requirement: nothing mixes two finders in one run, even if "auto" would
+    # decide differently when the run is resumed
+    import json
+    study = load_study(write_study(tmp_path, COMPETITION.format(size=40, solver=""), "r.toml"))
+    out = tmp_path / "run"
+    first = run_study(study, out, jobs=1, report=False, chunk_size=10).summary["solver"]["method"]
+    other = "newton" if first == "homotopy" else "homotopy"
+    manifest = json.loads((out / "manifest.json").read_text())
+    manifest.update(solver=other, complete=False)
+    manifest["chunks"].pop(sorted(manifest["chunks"])[-1])
+    (out / "manifest.json").write_text(json.dumps(manifest))
+    resumed = run_study(study, out, jobs=1, report=False, chunk_size=10, resume=True).summary["solver"]
+    assert resumed["method"] == other and "choice" not in resumed
+
+
 def test_homotopy_and_newton_agree_with_the_closed_form(tmp_path):
     # source: closed form of the Lotka–Volterra competition steady states (e.g. Strogatz
     # 1994 §6.4): (0,0), (r1,0), (0,r2) and, when positive, the interior point

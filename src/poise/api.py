@@ -124,6 +124,10 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
     method, estimate = choose(study, model)
 
     manifest = _prepare_directory(directory, study, design.n_rows, chunk_size, resume)
+    if manifest.get("chunks") and manifest.get("solver") not in (None, method):
+        # resuming: finish with the finder the saved chunks used (an "auto" choice near
+        # its threshold could come out differently on another machine or library version)
+        method, estimate = manifest["solver"], None
     manifest.update(solver=method, design=study.sampling.design)
     write_manifest(directory, manifest)
     bar = Progress(design.n_rows, enabled=progress)
@@ -211,6 +215,8 @@ def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: i
         differences = [key for key in FINGERPRINT if existing.get(key) != fresh.get(key)]
         if not differences:
             fresh["chunks"] = existing.get("chunks", {})
+            if fresh["chunks"] and existing.get("solver"):
+                fresh["solver"] = existing["solver"]  # the finder the saved chunks used
         elif resume or not existing.get("complete"):
             raise InputError(
                 f"this directory holds {'a' if existing.get('complete') else 'an unfinished'} "

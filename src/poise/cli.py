@@ -53,7 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
-    _quiet_threads_after_interrupt()
+    restore = _quiet_threads_after_interrupt()
     try:
         handler = {"check": _check, "inspect": _inspect, "run": _run, "report": _report}[args.command]
         return handler(args)
@@ -63,10 +63,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("poise: interrupted", file=sys.stderr)
         return 130
+    finally:
+        restore()
 
 
-def _quiet_threads_after_interrupt() -> None:
-    """After Ctrl-C, let background threads die silently.
+def _quiet_threads_after_interrupt():
+    """After Ctrl-C, let background threads die silently; returns a function that puts
+    the previous SIGINT handler and thread hook back.
 
     Stopping the worker pool on Ctrl-C tears down the pool's helper threads in this
     process; one of them can fail on the way (a pipe to a killed worker) and Python
@@ -76,8 +79,10 @@ def _quiet_threads_after_interrupt() -> None:
     import signal
     import threading
 
+    if threading.current_thread() is not threading.main_thread():
+        return lambda: None
     interrupted = threading.Event()
-    report = threading.excepthook
+    report, previous = threading.excepthook, signal.getsignal(signal.SIGINT)
 
     def on_interrupt(signum, frame):
         interrupted.set()
@@ -87,9 +92,16 @@ def _quiet_threads_after_interrupt() -> None:
         if not interrupted.is_set():
             report(hook_args)
 
-    if threading.current_thread() is threading.main_thread():
-        signal.signal(signal.SIGINT, on_interrupt)
-        threading.excepthook = on_thread_error
+    signal.signal(signal.SIGINT, on_interrupt)
+    threading.excepthook = on_thread_error
+
+    def restore():
+        signal.signal(signal.SIGINT, previous)
+        # threads stopped by the interrupt may still be dying: keep them quiet
+        if not interrupted.is_set():
+            threading.excepthook = report
+
+    return restore
 
 
 def _check(args) -> int:

@@ -22,6 +22,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import lru_cache
 
+import numpy as np
+
 from poise.equilibria.polynomial import PolynomialSystem, polynomial_form
 from poise.errors import InputError
 from poise.model import CompiledModel
@@ -33,7 +35,7 @@ PROBE_SETS = 64
 PROBE_SEED = 2          # the hubs use seed 1: the probe sets are other points
 # beyond these, even the probe would take long: auto then stays with Newton
 MAX_BEZOUT = 4096       # total-degree bound (paths of the once-per-system start solve)
-MAX_PATHS = 256         # paths per parameter set
+MAX_PATHS = 256         # generic root count (paths per set from the generic start)
 
 
 @dataclass(frozen=True)
@@ -91,8 +93,9 @@ def choose(study: Study, model: CompiledModel) -> tuple[str, WorkEstimate | None
 
 def work_estimate(study: Study, model: CompiledModel, system: PolynomialSystem) -> WorkEstimate | None:
     """Both finders' counted work on the probe design; None when nothing varies, a
-    varying parameter has no distribution (no hubs, no probe design), or the system
-    needs more than MAX_BEZOUT start paths or MAX_PATHS paths per set."""
+    varying parameter has no distribution (no hubs, no probe design), the system needs
+    more than MAX_BEZOUT start paths or has a generic root count above MAX_PATHS, or the
+    probe's homotopy fails (then Newton runs; the failure is not the run's concern)."""
     from poise.equilibria.continuation import SEED, hub_parameters
     from poise.equilibria.finder import newton_work
     from poise.equilibria.homotopy import generic_root_count, solve_batch
@@ -107,6 +110,9 @@ def work_estimate(study: Study, model: CompiledModel, system: PolynomialSystem) 
     newton = newton_work(model.kernels, probe, model.magnitude(probe), model.domain_low, model.domain_high,
                          starts=settings.starts, deflation_rounds=settings.deflation_rounds,
                          max_iterations=settings.max_iterations)
-    homotopy = float(solve_batch(system, probe, seed=SEED, hubs=hubs).evaluations.mean())
+    try:
+        homotopy = float(solve_batch(system, probe, seed=SEED, hubs=hubs).evaluations.mean())
+    except (ValueError, FloatingPointError, ArithmeticError, np.linalg.LinAlgError):
+        return None
     speed = newton / max(EVALUATION_COST * homotopy, 1e-300)
     return WorkEstimate(newton_iterations=newton, homotopy_evaluations=homotopy, predicted_speed=speed)

@@ -12,24 +12,30 @@ Morgan & Sommese 1989, "Coefficient-parameter polynomial continuation"):
    (Li & Wang 1996). This runs twice with different ``gamma`` and the nonsingular finite
    endpoints are merged.
 2. **Hubs, once per study.** Given hub parameter sets (a small design over the study's
-   distributions), the roots of ``F_c*`` are tracked to each hub's own coefficients
-   plus a little relative complex noise, which makes every hub a generic member of the
-   family (all its roots finite and simple, with probability one). Hubs where that
-   fails are dropped.
-3. **Coefficient-parameter homotopy, per parameter set.** The roots at the start (the
-   hub nearest in normalised coefficient space, else ``c*``) are tracked along
-   ``H(x, s) = F(x; c_target + s (c_start - c_target))`` from ``s = 1`` to ``s = 0``;
-   by the coefficient-parameter theorem every isolated root of the target is the end of
-   one of these paths. A near hub makes the path short: a few steps instead of dozens.
-   Paths are tracked by the compiled loop in `poise.equilibria.tracker`, each on its own.
+   distributions), the roots of ``F_c*`` are tracked to each hub's start system: the
+   hub's own coefficients plus a little relative complex noise, which makes every hub a
+   generic member of the family (all its roots finite and simple, with probability
+   one). When every coefficient is a polynomial in the parameters and the model's own
+   family has fewer roots than ``F_c*`` (parameters tied across terms), the noise goes
+   on the hub's *parameters* instead and only the family's roots are kept
+   (`poise.equilibria.parameter_path`). Hubs where that fails are dropped.
+3. **Per parameter set.** The roots at the start (the hub nearest in signed-log
+   normalised coefficient scale, else ``c*``) are tracked from ``s = 1`` to ``s = 0``
+   along a straight line in coefficient space, ``F(x; c_target + s (c_start -
+   c_target))`` (coefficient-parameter homotopy), or, from a parameter hub, in parameter
+   space, ``F(x; c(p_target + s (p_hub - p_target)))`` (parameter homotopy; ``c(p(s))``
+   is then a polynomial in ``s``). Either way every isolated root of the target is the
+   end of one of these paths with probability one. A near hub makes the path short: a
+   few steps instead of dozens. Paths are tracked by the compiled loop in
+   `poise.equilibria.tracker`, each on its own.
 
-   The straight path runs in *coefficient* space rather than parameter space: the
-   coefficients are then linear in ``s`` (exact and cheap ``dH/ds``), coefficient functions
-   such as ``sqrt(K)`` or ``log(K)`` are never evaluated at complex parameters (no branch
-   cuts), and roots that are multiple for every parameter value (e.g. ``x**2 * (a - x)``)
-   are simple at the start and handled at the end like any singular endpoint. The price:
-   when the parameter structure makes the family's root count smaller than that of free
-   coefficients, the surplus paths diverge at every target.
+   Coefficient-space lines need no derivatives of the coefficient functions, never
+   evaluate functions such as ``sqrt(K)`` or ``log(K)`` at complex parameters (no branch
+   cuts), and keep roots that are multiple for every parameter value (e.g.
+   ``x**2 * (a - x)``) simple at the start. Their price, when the parameter structure
+   makes the family's root count smaller than that of free coefficients: surplus paths
+   that diverge at every target. Parameter-space lines avoid that price where they
+   apply.
 
 Details:
 
@@ -45,13 +51,17 @@ Details:
   stricter acceptance test (twice at most). Failed paths are re-tracked the same way.
   From a hub, more paths ending at infinity than on the way from that hub to its own
   real system also marks a jump: those paths are tracked again too.
-* **Singular endpoints.** No Cauchy or power-series endgame: a path heading for a
-  multiple root (or a multiple point at infinity) cannot land on ``s = 0``; its steps
-  shrink geometrically until they collapse (typically near ``s ~ 1e-11``), where it is
-  stopped and refined by up to 60 Newton iterations on the target (linear convergence at
-  a multiple root). A large condition number of the scaled Jacobian marks it singular,
-  which loosens the tolerances for calling it real and for merging duplicates. Multiple
-  roots are therefore accurate to roughly ``eps**(1/multiplicity)``.
+* **Singular endpoints.** A path heading for a multiple root (or a singular point at
+  infinity) gets the Cauchy endgame of `poise.equilibria.tracker`, which also reports
+  its cycle number; paths with cycle number c must reach a finite root c at a time, and
+  c >= 2 at a regular point means the endgame averaged a cluster of distinct roots:
+  both are re-tracked without the endgame. Where the endgame does not settle, the
+  steps shrink until they collapse near ``s = 0`` and the point is refined by up to 60
+  Newton iterations. A large condition number of the Jacobian in relative units marks
+  an end point singular, which loosens the tolerances for calling it real and for
+  merging duplicates. Reported multiple roots are polished by Newton, so accurate to
+  roughly ``eps**(1/multiplicity)``. A path ending at a singular point off the real
+  line (a continuum, or a complex multiple root) flags its set (status 1).
 * **Real roots.** Finite endpoints with a small imaginary part are polished by real
   Newton on the cleared system, kept when the residual is small relative to the size of
   the terms, dropped when a cleared denominator vanishes there, and de-duplicated.
@@ -104,7 +114,8 @@ class HomotopyResult:
     message : ndarray of str, shape (B,)
         Reason when ``status != 0``, else ``""``.
     evaluations : ndarray of int, shape (B,)
-        Evaluations of the homotopy and its derivatives spent on each set's paths: a
+        Evaluations of the homotopy and its derivatives spent tracking each set's paths
+        (all tracking rounds; not the refinement at s = 0 nor the real polishing): a
         machine-independent measure of the work (`poise.equilibria.choice` uses it).
     """
 
@@ -131,9 +142,9 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     hubs : array_like, shape (H, m), optional
         Parameter sets spread over the region the targets come from (e.g. a small
         design over the study's distributions). Each is solved once from the generic
-        start; every target is then tracked from the hub nearest to it in coefficient
-        space, a path several times shorter (see `_hub_start`). Results depend on the
-        hubs given, never on the other rows of the batch.
+        start; every target is then tracked from the hub nearest to it (signed-log
+        normalised coefficients), a path several times shorter (see `_hub_start`).
+        Results depend on the hubs given, never on the other rows of the batch.
 
     Returns
     -------
@@ -344,11 +355,14 @@ class _Settings:
     newton_steps: int = 3
     max_iterations: int = 3000
     s_stop: float = 1e-11       # a step ending below this lands at s = 0
+    endgame: bool = True        # Cauchy endgame for singular end points
 
 
 _NORMAL = _Settings()
-_RETRACK = (_Settings(h_init=0.01, h_max=0.02, beta=1e-5),
-            _Settings(h_init=0.002, h_max=0.005, beta=1e-7))
+# re-tracking takes small steps and no endgame: a path flagged after an endgame goes
+# the plain way, so the two ways check each other
+_RETRACK = (_Settings(h_init=0.01, h_max=0.02, beta=1e-5, endgame=False),
+            _Settings(h_init=0.002, h_max=0.005, beta=1e-7, endgame=False))
 
 _DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
@@ -367,7 +381,7 @@ def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
         np.ascontiguousarray(X, dtype=complex),
         np.ones(X.shape[1]) if hom.weight is None else np.ascontiguousarray(hom.weight, dtype=float),
         cfg.h_init, cfg.h_max, cfg.beta, cfg.tol,
-        cfg.newton_steps, cfg.max_iterations, cfg.s_stop)
+        cfg.newton_steps, cfg.max_iterations, cfg.s_stop, cfg.endgame)
 
 
 def _refine(hom: _Homotopy, X: np.ndarray, group: np.ndarray, iterations: np.ndarray):
@@ -439,12 +453,17 @@ def _finite(end: np.ndarray) -> np.ndarray:
 
 
 def _duplicates(end, state, cond, cycle, per_group: int) -> np.ndarray:
-    """Paths whose end point shows that some path of their group jumped.
+    """Paths whose end point shows that some path of their group jumped, or that the
+    endgame's circles enclosed more than the end point.
 
     At a finite nonsingular root only one path can end. Several may end at a multiple
     root, but they arrive in loops: paths that the endgame gave cycle number ``c`` come
     ``c`` at a time (Sommese & Wampler 2005, sec. 10.3), so a count that is not a
-    multiple of ``c`` means a path is missing or extra. (At infinity nothing is checked.)
+    multiple of ``c`` means a path is missing or extra. And a cycle number of 2 or more
+    means a singular end point (where the Jacobian is regular, the implicit function
+    theorem makes the path analytic in ``s``, cycle number 1): at a regular point, the
+    circles went around other branch points too and averaged several distinct roots
+    (a cluster of roots close together). (At infinity nothing is checked.)
     """
     per_group = max(per_group, 1)
     finite = _finite(end)
@@ -453,7 +472,8 @@ def _duplicates(end, state, cond, cycle, per_group: int) -> np.ndarray:
     twice = tracker.near_pairs(points, per_group, 1e-7)[0]
     looped = (state == _DONE) & finite & (cycle > 1)
     points = np.ascontiguousarray(np.where(looped[:, None], end, np.nan), dtype=complex)
-    return twice | tracker.broken_cycles(points, cycle, per_group, 1e-6)
+    averaged = looped & (cond < _SINGULAR)
+    return twice | averaged | tracker.broken_cycles(points, cycle, per_group, 1e-6)
 
 
 # ------------------------------------------------------------------ compiled system
@@ -688,7 +708,7 @@ def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: 
     # how many paths diverge on the way from each hub to its own (real) system: targets
     # near the hub should lose no more than that many to infinity
     own = _line(comp.table, start.chart, anchor.astype(complex), hub_coef, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), -1), roots=roots,
+    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), q * K), roots=roots,
                  weight=weight, infinite=_diverging(own, roots))
 
 
@@ -724,7 +744,7 @@ def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: 
     with np.errstate(all="ignore"):
         C = C / np.abs(C[..., 0]).max(axis=2, keepdims=True)[..., None]
     own = _Homotopy(comp.table, start.chart, C, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), -1), roots=roots,
+    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), anchor[0].size), roots=roots,
                  weight=weight, infinite=_diverging(own, roots), params=hub_params)
 
 
@@ -786,10 +806,10 @@ def _log_scale(coef: np.ndarray) -> np.ndarray:
 
 
 def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
-    """Index of the nearest anchor (Euclidean) for each point; ties go to the first."""
-    gap = ((points ** 2).sum(axis=1)[:, None] - 2 * points @ anchors.T
-           + (anchors ** 2).sum(axis=1)[None, :])
-    return np.argmin(gap, axis=1)
+    """Index of the nearest anchor (Euclidean) for each point; ties go to the first.
+    Compiled and summed term by term, so each point's choice is independent of the batch."""
+    return tracker.nearest_rows(np.ascontiguousarray(points, dtype=float),
+                                np.ascontiguousarray(anchors, dtype=float))
 
 
 # ------------------------------------------------------------------- target solve

@@ -35,12 +35,13 @@ path and the endgame's circles):
   in ``s**(1/c)``: the trapezoid rule on ``c`` turns is exact for the first ``8 c - 1``
   powers; Morgan, Sommese & Wampler 1992, "A power series method for computing
   singular solutions to nonlinear analytic systems"; Sommese & Wampler 2005, ch. 10).
-  The estimate is accepted only if it solves the target to rounding level (residual
-  1e-12 of the size its terms can have); otherwise the circle is repeated at radius
-  ``r / 4``. Estimates that merely agree between radii are not trusted: a circle that
-  also encloses another branch point close to ``s = 0`` averages different end points,
-  and does so alike at every radius that encloses it. An endgame that does not settle
-  hands the path back to plain steps.
+  The circle is repeated at radius ``r / 4``; an estimate is accepted when two
+  successive circles have the same cycle number, agree, the loop's spread shrank and
+  the estimate solves the target. Circles that also enclose other branch points close
+  to ``s = 0`` (a cluster of nearby roots) average different end points, alike at
+  every radius that encloses them; their spread does not shrink and their cycle number
+  changes once the circles fit inside the cluster, so they are never accepted. An
+  endgame that does not settle hands the path back to plain steps.
 """
 
 from __future__ import annotations
@@ -56,9 +57,10 @@ _GROW_EXP, _MAX_GROW, _SHRINK_EXP, _MIN_SHRINK = 0.2, 2.0, 0.2, 0.1  # step cont
 # endgame: starts once s <= _EG_RADIUS after _EG_STREAK steps below _EG_RATIO * s;
 # _EG_SAMPLES points per turn, at most _EG_CYCLE turns per circle (closed when back to
 # within _EG_CLOSE, relative), radius shrinking by _EG_SHRINK for at most _EG_ROUNDS
-# circles; accepted at a relative residual of _EG_RESIDUAL
+# circles; see `_cauchy` for when an estimate is accepted
 _EG_RADIUS, _EG_RATIO, _EG_STREAK, _EG_SAMPLES, _EG_SHRINK = 0.01, 0.75, 3, 8, 0.25
-_EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 5, 1e-6, 1e-12
+_EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 6, 1e-6, 1e-10
+_EG_AGREE, _EG_SHRANK = 1e-8, 0.95
 
 
 @njit(cache=True, inline="always")
@@ -327,16 +329,18 @@ def _polish(P, W, J, V, s, inv_w, tally):
 
 
 @njit(cache=True)
-def _residual(P, x, W):
-    """max_i |H_i(x, 0)| / sum_k |c_ik| |x|_max**deg_k: the target's residual relative to
-    the size its terms can have at this |x| (not their actual sizes, which can all be
-    rounding noise at a point where every monomial vanishes)."""
+def _residual(P, x, W, inv_w):
+    """max_i |H_i(x, 0)| / sum_k |c_ik| prod_j max(|x_j|, w_j)**e_kj: the target's
+    residual relative to the size of its terms, each coordinate counted at least at its
+    typical size w (``inv_w = 1 / w**2``): at a point where every monomial vanishes the
+    actual terms are all rounding noise, and against |x|_max instead a cluster of small
+    roots would pass for a solution anywhere near it."""
     exps, live, C, _ = P
     q, K, nv = exps.shape
     pw = W[3]
-    radius = 0.0
+    floor = W[2]  # coordinate sizes, floored
     for j in range(nv):
-        radius = max(radius, abs(x[j]))
+        floor[j] = max(abs(x[j]), 1.0 / np.sqrt(inv_w[j]))
         pw[j, 0] = 1.0
         for e in range(1, pw.shape[1]):
             pw[j, e] = pw[j, e - 1] * x[j]
@@ -347,12 +351,12 @@ def _residual(P, x, W):
         for k in range(K):
             if live[i, k]:
                 term = C[i, k, 0]
-                degree = 0
+                bound = abs(C[i, k, 0])
                 for j in range(nv):
                     term *= pw[j, exps[i, k, j]]
-                    degree += exps[i, k, j]
+                    bound *= floor[j].real ** exps[i, k, j]
                 h += term
-                size += abs(C[i, k, 0]) * radius ** degree
+                size += bound
         if size > 0:
             worst = max(worst, abs(h) / size)
     return worst
@@ -362,12 +366,22 @@ def _residual(P, x, W):
 def _cauchy(P, W, J, V, E, r, settings):
     """Cauchy endgame from (V[0], V[1]) at s = r (real). On success the end point is in
     E[0] and the cycle number is returned; 0 when it does not settle (V then holds the
-    path at the last real radius reached, E[3] its s in the real part)."""
+    path at the last real radius reached, E[3] its s in the real part).
+
+    An estimate is accepted when two successive circles (radius r, then r / 4) have the
+    same cycle number, their estimates agree to _EG_AGREE, the loop's spread shrank
+    (by at least _EG_SHRANK) and the estimate solves the target (_EG_RESIDUAL). A
+    circle that also encloses other branch points close to s = 0 (a cluster of nearby
+    roots) averages distinct end points; its spread is the cluster's size and does not
+    shrink with r, and its cycle number changes once the circles fit inside the
+    cluster, so such estimates are never accepted.
+    """
     inv_w = settings[0]
     x, v = V[0], V[1]
-    start, total, home_v = E[1], E[2], E[4]
+    start, total, home_v, previous = E[1], E[2], E[4], E[5]
     nv = x.shape[0]
     M = _EG_SAMPLES
+    last_cycle, last_spread = 0, np.inf
     for rnd in range(_EG_ROUNDS):
         E[3, 0] = r
         _polish(P, W, J, V, complex(r, 0.0), inv_w, settings[7])
@@ -376,11 +390,16 @@ def _cauchy(P, W, J, V, E, r, settings):
             home_v[j] = v[j]
             total[j] = 0j
         cycle = 0
+        spread = 0.0
         broken = False
         for turn in range(1, _EG_CYCLE + 1):
             for k in range(M):
+                gap = 0.0
                 for j in range(nv):
                     total[j] += x[j]
+                    z = x[j] - start[j]
+                    gap += (z.real * z.real + z.imag * z.imag) * inv_w[j]
+                spread = max(spread, np.sqrt(gap))
                 sa = r * np.exp(2j * np.pi * k / M)
                 sb = r * np.exp(2j * np.pi * (k + 1) / M)
                 state, _, _ = _segment(P, W, J, V, sa, sb, 1.0, settings, False)
@@ -400,15 +419,22 @@ def _cauchy(P, W, J, V, E, r, settings):
         for j in range(nv):
             x[j] = start[j]
             v[j] = home_v[j]
-        if broken or cycle == 0:
+        if broken:
             return 0
-        for j in range(nv):
-            E[0, j] = total[j] / (cycle * M)
-        # accepted only if it solves the target to rounding level: radii that agree
-        # are not enough, since every circle around another branch point near s = 0
-        # averages the same different end points
-        if _residual(P, E[0], W) <= _EG_RESIDUAL:
-            return cycle
+        if cycle > 0:
+            for j in range(nv):
+                E[0, j] = total[j] / (cycle * M)
+            if cycle == last_cycle and spread <= _EG_SHRANK * last_spread:
+                gap = 0.0
+                for j in range(nv):
+                    z = E[0, j] - previous[j]
+                    gap += (z.real * z.real + z.imag * z.imag) * inv_w[j]
+                if (np.sqrt(gap) <= _EG_AGREE * _weighted_norm(E[0], inv_w)
+                        and _residual(P, E[0], W, inv_w) <= _EG_RESIDUAL):
+                    return cycle
+            for j in range(nv):
+                previous[j] = E[0, j]
+        last_cycle, last_spread = cycle, spread
         state, _, _ = _segment(P, W, J, V, complex(r, 0.0), complex(r * _EG_SHRINK, 0.0), 1.0,
                                settings, False)
         if state != DONE:
@@ -423,8 +449,8 @@ def _cauchy(P, W, J, V, E, r, settings):
 
 @njit(cache=True)
 def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, tol,
-                newton_steps, max_steps, s_stop):
-    """Track every row of X0 from s = 1 to s = 0.
+                newton_steps, max_steps, s_stop, endgame):
+    """Track every row of X0 from s = 1 to s = 0 (with the Cauchy endgame if ``endgame``).
 
     Returns endpoints (N, nv), states (N,) int8 (DONE / FAILED / STALLED), cycle
     numbers (N,) int8 (0 for a path that reached s = 0 by plain steps, c >= 1 for one
@@ -434,7 +460,7 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
     N, nv = X0.shape
     W = _work(exps)
     V = np.empty((9, nv), dtype=np.complex128)
-    E = np.empty((5, nv), dtype=np.complex128)
+    E = np.empty((6, nv), dtype=np.complex128)
     J = np.empty((nv, nv), dtype=np.complex128)
     inv_w = 1.0 / weight ** 2
     tally = np.zeros(1, dtype=np.int64)
@@ -454,7 +480,7 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
             out[p] = x
             evaluations[p] = 1
             continue
-        s, h, trigger = 1.0, h_init, True
+        s, h, trigger = 1.0, h_init, endgame
         while True:
             st, t, h = _segment(P, W, J, V, complex(s, 0.0), 0j, h, settings, trigger)
             s = s * (1.0 - t)
@@ -483,10 +509,12 @@ def refine_paths(exps, live, chart, C, group, X, budget):
     step below 1e-11 |X|: Newton converges quadratically, so the error left after such
     a step is at rounding level), and the condition number of each end point's Jacobian.
 
-    The condition number is that of the Jacobian with each polynomial row divided by the
-    size its entries can have at this |X| (``sum_k |c_k| deg_k |X|_max**(deg_k - 1)``),
-    in the 1-norm. The scale is a bound, not the row's current length: at a multiple
-    root a whole row can vanish, and scaling it to unit length would hide exactly that.
+    The condition number (1-norm) is that of the Jacobian in relative units: column j
+    multiplied by the size of coordinate j, row i divided by the size of equation i's
+    terms (``sum_k |c_k| prod_j |X_j|**e_kj``), sizes floored at 1e-8 |X|_max. So a
+    cluster of small roots is judged at its own scale, not against |X|_max. The row
+    scale is the terms' size, not the row's current length: at a multiple root a whole
+    row can vanish, and scaling it to unit length would hide exactly that.
     """
     N, nv = X.shape
     q, K, _ = exps.shape
@@ -514,29 +542,32 @@ def refine_paths(exps, live, chart, C, group, X, budget):
             if _norm(dx) <= 1e-11 * _norm(x):
                 break
         out[p] = x
-        # row-scaled Jacobian at the end point
+        # Jacobian in relative units: column j times the size of coordinate j, row i
+        # divided by the size of equation i's terms (both at floored sizes)
         _system(P, 0j, x, W, J, False)
-        radius = 0.0
+        size = e1  # scratch: floored coordinate sizes
+        top = 0.0
         for j in range(nv):
-            radius = max(radius, abs(x[j]))
-        cmax = 0.0
+            top = max(top, abs(x[j]))
         for j in range(nv):
-            cmax = max(cmax, abs(chart[j]))
+            size[j] = max(abs(x[j]), 1e-8 * top)
         for i in range(q):
-            bound = 0.0
+            row = 0.0
             for k in range(K):
                 if live[i, k]:
-                    d = 0
+                    term = abs(C[group[p], i, k, 0])
                     for j in range(nv):
-                        d += exps[i, k, j]
-                    if d > 0:
-                        bound += abs(C[group[p], i, k, 0]) * d * radius ** (d - 1)
-            if bound == 0.0:
-                bound = 1.0
+                        term *= size[j].real ** exps[i, k, j]
+                    row += term
+            if row == 0.0:
+                row = 1.0
             for j in range(nv):
-                J[i, j] /= bound
+                J[i, j] *= size[j].real / row
+        row = 0.0
         for j in range(nv):
-            J[q, j] = chart[j] / cmax
+            row += abs(chart[j]) * size[j].real
+        for j in range(nv):
+            J[q, j] = chart[j] * size[j].real / row
         cond[p] = _condition_1(J, A, e1, e2, o1, o2)
     return out, cond
 
@@ -637,3 +668,22 @@ def broken_cycles(points, cycle, per_group, rel):
                     same += 1
             broken[i] = same % cycle[i] != 0
     return broken
+
+
+@njit(cache=True)
+def nearest_rows(points, anchors):
+    """Index of the nearest row of ``anchors`` (Euclidean) for each row of ``points``;
+    ties go to the first. Each distance is summed term by term in a fixed order, so a
+    point's answer does not depend on the other points (a matrix product would)."""
+    out = np.zeros(points.shape[0], dtype=np.int64)
+    for i in range(points.shape[0]):
+        best = np.inf
+        for a in range(anchors.shape[0]):
+            d = 0.0
+            for c in range(points.shape[1]):
+                z = points[i, c] - anchors[a, c]
+                d += z * z
+            if d < best:
+                best = d
+                out[i] = a
+    return out
