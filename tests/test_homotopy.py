@@ -397,27 +397,30 @@ def test_empty_batch_and_wrong_shapes():
 # ------------------------------------------------------------------ endgame, parameter lines
 
 
-def test_endgame_returns_a_triple_root_accurately_with_cycle_number_three():
-    # (x - a)^3 (x + b): x = a is a triple root. The three paths ending there behave like
-    # a + O(s^(1/3)) near s = 0 and are permuted cyclically by a loop around s = 0, so
-    # each has cycle number 3 (Puiseux expansion; Sommese & Wampler 2005, sec. 10.3),
-    # and the Cauchy integral gives the root far more accurately than the eps**(1/3)
-    # (~6e-6) that Newton reaches at a triple root. x = -b is simple (plain steps).
-    system = polynomial_form([(x - a) ** 3 * (x + b)], [x], [a, b])
+def test_endgame_places_paths_at_a_singular_point_at_infinity_with_cycle_number_two():
+    # e x^3 + x - a at e = 0: one root x = a; the other two escape to infinity as
+    # x ~ +-i / sqrt(e) (hand calculation: balance e x^3 + x = 0), so along a path whose
+    # leading coefficient shrinks like s they grow like s**(-1/2): cycle number 2 at a
+    # double point at infinity. Plain steps stop short of it (|X_0| ~ 1e-6, which would
+    # read as a finite point of size 1e5); the endgame lands on X_0 = 0.
+    system = polynomial_form([a * x**3 + x - b], [x], [a, b])
     comp, start = homotopy._compile(system), homotopy._start(system, 0)
-    target = comp.coefficients(np.array([[0.7, 1.3]]))
+    target = comp.coefficients(np.array([[0.0, 0.3]]))
     target = (target / np.abs(target).max(axis=2, keepdims=True)).astype(complex)
     hom = homotopy._line(comp.table, start.chart, target, start.cstar[None])
     group = np.zeros(len(start.roots), dtype=int)
     end, state, cycle, _ = homotopy._track(hom, start.roots, group, homotopy._NORMAL)
     xs = end[:, 1] / end[:, 0]
-    triple = np.abs(xs - 0.7) < 1e-3
-    assert len(start.roots) == 4 and triple.sum() == 3
-    assert (state == homotopy._DONE).all()
-    assert (cycle[triple] == 3).all() and (cycle[~triple] <= 1).all()
-    np.testing.assert_allclose(xs[triple].real, 0.7, atol=1e-10)
-    np.testing.assert_allclose(xs[triple].imag, 0.0, atol=1e-10)
-    np.testing.assert_allclose(xs[~triple], -1.3, atol=1e-12)
+    finite = np.abs(xs - 0.3) < 1e-6
+    assert len(start.roots) == 3 and finite.sum() == 1 and (state == homotopy._DONE).all()
+    assert (cycle[~finite] == 2).all()
+    assert (np.abs(end[~finite, 0]) <= 1e-12 * np.abs(end[~finite]).max(axis=1)).all()
+    result = solve_batch(system, np.array([[0.0, 0.3], [0.0, -2.0], [0.01, 0.3]]))
+    assert (result.status == 0).all()
+    np.testing.assert_allclose(_found(result, 0)[:, 0], [0.3], rtol=1e-12)
+    np.testing.assert_allclose(_found(result, 1)[:, 0], [-2.0], rtol=1e-12)
+    reference, _ = _real_roots([0.01, 0.0, 1.0, -0.3])  # e > 0: one real root (numpy.roots)
+    np.testing.assert_allclose(_found(result, 2)[:, 0], reference, rtol=1e-10)
 
 
 def test_along_line_matches_sympy_substitution():

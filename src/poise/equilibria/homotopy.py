@@ -51,17 +51,15 @@ Details:
   stricter acceptance test (twice at most). Failed paths are re-tracked the same way.
   From a hub, more paths ending at infinity than on the way from that hub to its own
   real system also marks a jump: those paths are tracked again too.
-* **Singular endpoints.** A path heading for a multiple root (or a singular point at
-  infinity) gets the Cauchy endgame of `poise.equilibria.tracker`, which also reports
-  its cycle number; paths with cycle number c must reach a finite root c at a time, and
-  c >= 2 at a regular point means the endgame averaged a cluster of distinct roots:
-  both are re-tracked without the endgame. Where the endgame does not settle, the
-  steps shrink until they collapse near ``s = 0`` and the point is refined by up to 60
-  Newton iterations. A large condition number of the Jacobian in relative units marks
-  an end point singular, which loosens the tolerances for calling it real and for
-  merging duplicates. Reported multiple roots are polished by Newton, so accurate to
-  roughly ``eps**(1/multiplicity)``. A path ending at a singular point off the real
-  line (a continuum, or a complex multiple root) flags its set (status 1).
+* **Singular endpoints.** A path heading for a singular point at infinity gets the
+  Cauchy endgame of `poise.equilibria.tracker`, which places it there without
+  following it down to ``s ~ 1e-11``. A path heading for a finite multiple root is left
+  to plain steps: they shrink until they collapse near ``s = 0``, where the point is
+  refined by up to 60 Newton iterations (linear convergence). A large condition number
+  of the scaled Jacobian marks it singular, which loosens the tolerances for calling it
+  real and for merging duplicates. Multiple roots are therefore accurate to roughly
+  ``eps**(1/multiplicity)``. A path ending at a singular point off the real line (a
+  continuum, or a complex multiple root) flags its set (status 1).
 * **Real roots.** Finite endpoints with a small imaginary part are polished by real
   Newton on the cleared system, kept when the residual is small relative to the size of
   the terms, dropped when a cleared denominator vanishes there, and de-duplicated.
@@ -162,7 +160,7 @@ def solve_batch(system: PolynomialSystem, param_values: np.ndarray, *,
     batch = values.shape[0]
     start = _start(system, seed)
     hub_start = None
-    if hubs is not None and m > 0:
+    if hubs is not None and m > 0 and np.size(hubs) > 0:
         hubs = np.ascontiguousarray(hubs, dtype=float).reshape(-1, m)
         hub_start = _hub_start(system, seed, hubs.tobytes(), hubs.shape[0])
     per_chunk = max(1, _PATHS_PER_CHUNK // max(1, len(start.roots)))
@@ -350,8 +348,9 @@ class _Settings:
     h_init: float = 1.0         # a whole path in one step when the predictor allows it
     h_max: float = 1.0
     beta: float = 3e-3          # largest first Newton correction accepted, relative to |X|
-    tol: float = 1e-6           # corrector convergence, relative to |X| in units of each
-                                # coordinate's typical size; end points are refined at s = 0
+    tol: float = 1e-9           # corrector convergence, relative to |X| in units of each
+                                # coordinate's typical size (1e-6 let paths near a double
+                                # root land apart, and left near-infinite ends "finite")
     newton_steps: int = 3
     max_iterations: int = 3000
     s_stop: float = 1e-11       # a step ending below this lands at s = 0
@@ -359,8 +358,7 @@ class _Settings:
 
 
 _NORMAL = _Settings()
-# re-tracking takes small steps and no endgame: a path flagged after an endgame goes
-# the plain way, so the two ways check each other
+# re-tracking takes small steps and no endgame
 _RETRACK = (_Settings(h_init=0.01, h_max=0.02, beta=1e-5, endgame=False),
             _Settings(h_init=0.002, h_max=0.005, beta=1e-7, endgame=False))
 
@@ -423,7 +421,7 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
     end, state, cycle, work = _track(hom, X, group, _NORMAL)
     end, cond = _finish(hom, end, state, cycle, group)
     for round_, cfg in enumerate(_RETRACK):
-        redo = (state == _FAILED) | _duplicates(end, state, cond, cycle, per_group)
+        redo = (state == _FAILED) | _duplicates(end, state, cond, per_group)
         if expected_infinite is not None and round_ == 0:
             infinite = ~_finite(end)
             extra = np.bincount(group[infinite], minlength=len(expected_infinite)) > expected_infinite
@@ -434,16 +432,14 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
         end[redo], cond[redo] = _finish(hom, e, st, cy, group[redo])
         state[redo], cycle[redo] = st, cy
         work[redo] += w
-    return end, state, cond, _duplicates(end, state, cond, cycle, per_group), work
+    return end, state, cond, _duplicates(end, state, cond, per_group), work
 
 
 def _finish(hom, end, state, cycle, group):
     """Newton at s = 0: a few steps for clean endpoints, many for stalled (singular)
-    ones, none for the endgame's estimates at infinity or with cycle number >= 2
-    (singular points: there Newton converges linearly at best, and once the residual is
-    rounding noise its steps are noise divided by a vanishing derivative)."""
-    keep = ((cycle > 0) & ~_finite(end)) | (cycle > 1)
-    budget = np.select([keep, state == _DONE, state == _STALLED], [0, 4, 60], 0)
+    ones, none for the endgame's (all at infinity, where Newton has nothing to converge
+    to and could only move them)."""
+    budget = np.select([cycle > 0, state == _DONE, state == _STALLED], [0, 4, 60], 0)
     return _refine(hom, end, group, budget)
 
 
@@ -452,28 +448,15 @@ def _finite(end: np.ndarray) -> np.ndarray:
     return np.abs(end[:, 0]) > _INFINITY * _norm(end)
 
 
-def _duplicates(end, state, cond, cycle, per_group: int) -> np.ndarray:
-    """Paths whose end point shows that some path of their group jumped, or that the
-    endgame's circles enclosed more than the end point.
+def _duplicates(end, state, cond, per_group: int) -> np.ndarray:
+    """Paths ending on the same well-conditioned finite point as another path of their group.
 
-    At a finite nonsingular root only one path can end. Several may end at a multiple
-    root, but they arrive in loops: paths that the endgame gave cycle number ``c`` come
-    ``c`` at a time (Sommese & Wampler 2005, sec. 10.3), so a count that is not a
-    multiple of ``c`` means a path is missing or extra. And a cycle number of 2 or more
-    means a singular end point (where the Jacobian is regular, the implicit function
-    theorem makes the path analytic in ``s``, cycle number 1): at a regular point, the
-    circles went around other branch points too and averaged several distinct roots
-    (a cluster of roots close together). (At infinity nothing is checked.)
+    Several paths may legitimately end at one point at infinity or at a multiple root;
+    at a finite nonsingular root, only one can.
     """
-    per_group = max(per_group, 1)
-    finite = _finite(end)
-    clean = (state == _DONE) & finite & (cond < _SINGULAR / 100)
+    clean = (state == _DONE) & _finite(end) & (cond < _SINGULAR / 100)
     points = np.ascontiguousarray(np.where(clean[:, None], end, np.nan), dtype=complex)
-    twice = tracker.near_pairs(points, per_group, 1e-7)[0]
-    looped = (state == _DONE) & finite & (cycle > 1)
-    points = np.ascontiguousarray(np.where(looped[:, None], end, np.nan), dtype=complex)
-    averaged = looped & (cond < _SINGULAR)
-    return twice | averaged | tracker.broken_cycles(points, cycle, per_group, 1e-6)
+    return tracker.near_pairs(points, max(per_group, 1), 1e-7)[0]
 
 
 # ------------------------------------------------------------------ compiled system

@@ -28,7 +28,7 @@ path and the endgame's circles):
   near ``s = 0`` and *failed* elsewhere.
 * **Endgame.** A path taking three steps in a row shorter than ``0.75 s`` once
   ``s <= 0.01`` is heading for a singular end point (a multiple root, or a singular
-  point at infinity): plain steps would shrink geometrically down to ``s ~ 1e-11``.
+  point at infinity): plain steps shrink geometrically down to ``s ~ 1e-11``.
   Instead it is tracked around the circle ``s = r exp(i theta)`` (chords between 8
   points per turn) until it closes; the number of turns is the cycle number ``c`` and
   the mean of the points on the closed loop is the end point (Cauchy's integral formula
@@ -36,12 +36,15 @@ path and the endgame's circles):
   powers; Morgan, Sommese & Wampler 1992, "A power series method for computing
   singular solutions to nonlinear analytic systems"; Sommese & Wampler 2005, ch. 10).
   The circle is repeated at radius ``r / 4``; an estimate is accepted when two
-  successive circles have the same cycle number, agree, the loop's spread shrank and
-  the estimate solves the target. Circles that also enclose other branch points close
-  to ``s = 0`` (a cluster of nearby roots) average different end points, alike at
-  every radius that encloses them; their spread does not shrink and their cycle number
-  changes once the circles fit inside the cluster, so they are never accepted. An
-  endgame that does not settle hands the path back to plain steps.
+  successive circles have the same cycle number, agree, the loop's spread shrank, the
+  estimate solves the target, and it lies at infinity. Finite singular end points
+  (multiple roots) are left to plain steps, which stall near ``s = 0`` and are refined
+  by Newton: circles that also enclose other branch points close to ``s = 0`` (a
+  cluster of nearby simple roots) average distinct roots, and for small roots nothing
+  on the circle tells that average from a multiple root. The endgame's gain is the
+  paths that diverge to a singular point at infinity, which plain steps follow down to
+  ``s ~ 1e-11`` at hundreds of evaluations. An endgame that does not settle hands the
+  path back to plain steps.
 """
 
 from __future__ import annotations
@@ -60,7 +63,7 @@ _GROW_EXP, _MAX_GROW, _SHRINK_EXP, _MIN_SHRINK = 0.2, 2.0, 0.2, 0.1  # step cont
 # circles; see `_cauchy` for when an estimate is accepted
 _EG_RADIUS, _EG_RATIO, _EG_STREAK, _EG_SAMPLES, _EG_SHRINK = 0.01, 0.75, 3, 8, 0.25
 _EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 6, 1e-6, 1e-10
-_EG_AGREE, _EG_SHRANK = 1e-8, 0.95
+_EG_AGREE, _EG_SHRANK, _EG_INFINITY = 1e-8, 0.95, 1e-11
 
 
 @njit(cache=True, inline="always")
@@ -302,11 +305,12 @@ def _segment(P, W, J, V, sa, sb, h, settings, trigger):
             if trigger and streak >= _EG_STREAK:
                 return ACTIVE, t, h
         else:
-            # shrink from the step actually tried (h may exceed what was left)
+            # shrink h itself, even when the step tried was shorter (it ran to the end of
+            # the segment): near a multiple root this brings the collapse on quickly
             shrink = 0.5
             if first > 0 and np.isfinite(first):
                 shrink = 0.8 * (beta / first) ** _SHRINK_EXP
-            h = (t_new - t) * min(0.5, max(_MIN_SHRINK, shrink))
+            h = h * min(0.5, max(_MIN_SHRINK, shrink))
             here = abs(sa + t * (sb - sa))
             if h * length < 1e-14 + 1e-9 * here:
                 return (STALLED if here < 1e-4 else FAILED), t, h
@@ -369,12 +373,12 @@ def _cauchy(P, W, J, V, E, r, settings):
     path at the last real radius reached, E[3] its s in the real part).
 
     An estimate is accepted when two successive circles (radius r, then r / 4) have the
-    same cycle number, their estimates agree to _EG_AGREE, the loop's spread shrank
-    (by at least _EG_SHRANK) and the estimate solves the target (_EG_RESIDUAL). A
-    circle that also encloses other branch points close to s = 0 (a cluster of nearby
-    roots) averages distinct end points; its spread is the cluster's size and does not
-    shrink with r, and its cycle number changes once the circles fit inside the
-    cluster, so such estimates are never accepted.
+    same cycle number, their estimates agree to _EG_AGREE, the loop's spread shrank (by
+    at least _EG_SHRANK), the estimate solves the target (_EG_RESIDUAL) *and it lies
+    at infinity* (|X_0| <= _EG_INFINITY |X|). Finite singular end points are left to
+    plain steps: a circle that also encloses other branch points close to s = 0 (a
+    cluster of nearby simple roots) averages distinct roots, and for small roots the
+    average passes every test above; at infinity an average can only be at infinity.
     """
     inv_w = settings[0]
     x, v = V[0], V[1]
@@ -424,12 +428,15 @@ def _cauchy(P, W, J, V, E, r, settings):
         if cycle > 0:
             for j in range(nv):
                 E[0, j] = total[j] / (cycle * M)
+            if abs(E[0, 0]) > 1e-6 * _norm(E[0]):
+                return 0  # a finite end point: left to plain steps (see above)
             if cycle == last_cycle and spread <= _EG_SHRANK * last_spread:
                 gap = 0.0
                 for j in range(nv):
                     z = E[0, j] - previous[j]
                     gap += (z.real * z.real + z.imag * z.imag) * inv_w[j]
                 if (np.sqrt(gap) <= _EG_AGREE * _weighted_norm(E[0], inv_w)
+                        and abs(E[0, 0]) <= _EG_INFINITY * _norm(E[0])
                         and _residual(P, E[0], W, inv_w) <= _EG_RESIDUAL):
                     return cycle
             for j in range(nv):
@@ -509,12 +516,10 @@ def refine_paths(exps, live, chart, C, group, X, budget):
     step below 1e-11 |X|: Newton converges quadratically, so the error left after such
     a step is at rounding level), and the condition number of each end point's Jacobian.
 
-    The condition number (1-norm) is that of the Jacobian in relative units: column j
-    multiplied by the size of coordinate j, row i divided by the size of equation i's
-    terms (``sum_k |c_k| prod_j |X_j|**e_kj``), sizes floored at 1e-8 |X|_max. So a
-    cluster of small roots is judged at its own scale, not against |X|_max. The row
-    scale is the terms' size, not the row's current length: at a multiple root a whole
-    row can vanish, and scaling it to unit length would hide exactly that.
+    The condition number is that of the Jacobian with each polynomial row divided by the
+    size its entries can have at this |X| (``sum_k |c_k| deg_k |X|_max**(deg_k - 1)``),
+    in the 1-norm. The scale is a bound, not the row's current length: at a multiple
+    root a whole row can vanish, and scaling it to unit length would hide exactly that.
     """
     N, nv = X.shape
     q, K, _ = exps.shape
@@ -539,35 +544,32 @@ def refine_paths(exps, live, chart, C, group, X, budget):
                 break
             for j in range(nv):
                 x[j] += dx[j]
-            if _norm(dx) <= 1e-11 * _norm(x):
+            if _norm(dx) <= 1e-15 * _norm(x):
                 break
         out[p] = x
-        # Jacobian in relative units: column j times the size of coordinate j, row i
-        # divided by the size of equation i's terms (both at floored sizes)
+        # row-scaled Jacobian at the end point
         _system(P, 0j, x, W, J, False)
-        size = e1  # scratch: floored coordinate sizes
-        top = 0.0
+        radius = 0.0
         for j in range(nv):
-            top = max(top, abs(x[j]))
+            radius = max(radius, abs(x[j]))
+        cmax = 0.0
         for j in range(nv):
-            size[j] = max(abs(x[j]), 1e-8 * top)
+            cmax = max(cmax, abs(chart[j]))
         for i in range(q):
-            row = 0.0
+            bound = 0.0
             for k in range(K):
                 if live[i, k]:
-                    term = abs(C[group[p], i, k, 0])
+                    d = 0
                     for j in range(nv):
-                        term *= size[j].real ** exps[i, k, j]
-                    row += term
-            if row == 0.0:
-                row = 1.0
+                        d += exps[i, k, j]
+                    if d > 0:
+                        bound += abs(C[group[p], i, k, 0]) * d * radius ** (d - 1)
+            if bound == 0.0:
+                bound = 1.0
             for j in range(nv):
-                J[i, j] *= size[j].real / row
-        row = 0.0
+                J[i, j] /= bound
         for j in range(nv):
-            row += abs(chart[j]) * size[j].real
-        for j in range(nv):
-            J[q, j] = chart[j] * size[j].real / row
+            J[q, j] = chart[j] / cmax
         cond[p] = _condition_1(J, A, e1, e2, o1, o2)
     return out, cond
 
@@ -642,32 +644,6 @@ def near_pairs(points, per_group, rel):
                     close_any[j] = True
                     close_later[j] = True
     return close_any, close_later
-
-
-@njit(cache=True)
-def broken_cycles(points, cycle, per_group, rel):
-    """Which points belong to a cluster whose paths with cycle number c >= 2 do not
-    come c at a time (clusters: points of one block within ``rel * |point|``)."""
-    N, d = points.shape
-    broken = np.zeros(N, dtype=np.bool_)
-    for lo in range(0, N, per_group):
-        hi = min(N, lo + per_group)
-        for i in range(lo, hi):
-            size = _norm(points[i])
-            if not np.isfinite(size) or cycle[i] < 2:
-                continue
-            same = 0
-            for j in range(lo, hi):
-                if cycle[j] != cycle[i]:
-                    continue
-                gap = 0.0
-                for c in range(d):
-                    z = points[i, c] - points[j, c]
-                    gap += z.real * z.real + z.imag * z.imag
-                if np.sqrt(gap) <= rel * max(size, _norm(points[j])):
-                    same += 1
-            broken[i] = same % cycle[i] != 0
-    return broken
 
 
 @njit(cache=True)
