@@ -11,10 +11,11 @@ finders solve the
 same fixed probe design (64 Sobol points over the study's distributions): Newton's
 iterations per set (over all starts and deflation rounds) against the homotopy's
 evaluations per set, an evaluation counted as `EVALUATION_COST` Newton iterations.
-That ratio was measured with benchmarks/bench_homotopy.py: 1.9 to 4.6 on the bundled
+That ratio was measured with benchmarks/bench_homotopy.py: 1.7 to 4.2 on the bundled
 studies (a homotopy evaluation is complex, in homogeneous coordinates, one path at a
-time, and carries the per-set polishing); with 3, the rule picks the method that
-meets the half-speed mark on every bundled study. "newton" and "homotopy" force a method.
+time, and carries the per-set polishing); with 3, the rule picks homotopy on the bundled
+studies where it clearly meets the half-speed mark and Newton on the toggle switch,
+which sits right at it. "newton" and "homotopy" force a method.
 """
 
 from __future__ import annotations

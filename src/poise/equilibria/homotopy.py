@@ -782,7 +782,7 @@ def _log_scale(coef: np.ndarray) -> np.ndarray:
     Roots move with the *relative* change of a coefficient: halving a coefficient of
     1e-4 matters as much as halving one of 1, and Euclidean distance between the raw
     normalised coefficients would see only the latter. Choosing hubs in this scale
-    shortened the paths of the bundled toggle switch from 38 to 14 evaluations each
+    shortened the paths of the bundled toggle switch from about 38 to 15 evaluations each
     (benchmarks/bench_homotopy.py).
     """
     return np.sign(coef) * np.log1p(np.abs(coef) / _LOG_FLOOR)
