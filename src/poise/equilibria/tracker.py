@@ -64,6 +64,7 @@ _GROW_EXP, _MAX_GROW, _SHRINK_EXP, _MIN_SHRINK = 0.2, 2.0, 0.2, 0.1  # step cont
 _EG_RADIUS, _EG_RATIO, _EG_STREAK, _EG_SAMPLES, _EG_SHRINK = 0.01, 0.75, 3, 8, 0.25
 _EG_CYCLE, _EG_ROUNDS, _EG_CLOSE, _EG_RESIDUAL = 8, 6, 1e-6, 1e-10
 _EG_AGREE, _EG_SHRANK, _EG_INFINITY = 1e-8, 0.95, 1e-11
+_EG_FINITE = 1e-6  # |X_0| / |X| of an estimate above this: a finite point, endgame stops
 
 
 @njit(cache=True, inline="always")
@@ -428,8 +429,8 @@ def _cauchy(P, W, J, V, E, r, settings):
         if cycle > 0:
             for j in range(nv):
                 E[0, j] = total[j] / (cycle * M)
-            if abs(E[0, 0]) > 1e-6 * _norm(E[0]):
-                return 0  # a finite end point: left to plain steps (see above)
+            if abs(E[0, 0]) > _EG_FINITE * _norm(E[0]):
+                return 0  # plainly finite: left to plain steps (see above), no more rounds
             if cycle == last_cycle and spread <= _EG_SHRANK * last_spread:
                 gap = 0.0
                 for j in range(nv):
@@ -512,9 +513,8 @@ def track_paths(exps, live, chart, C, group, X0, weight, h_init, h_max, beta, to
 
 @njit(cache=True)
 def refine_paths(exps, live, chart, C, group, X, budget):
-    """Newton at s = 0 from each row of X (at most ``budget[p]`` steps, stopping after a
-    step below 1e-11 |X|: Newton converges quadratically, so the error left after such
-    a step is at rounding level), and the condition number of each end point's Jacobian.
+    """Newton at s = 0 from each row of X (at most ``budget[p]`` steps, stopping once a
+    step is below 1e-15 |X|), and the condition number of each end point's Jacobian.
 
     The condition number is that of the Jacobian with each polynomial row divided by the
     size its entries can have at this |X| (``sum_k |c_k| deg_k |X|_max**(deg_k - 1)``),
