@@ -49,7 +49,7 @@ def parameter_family(params: Sequence[sympy.Symbol],
     """The family of a (q, K) grid of coefficient expressions, or None when some
     coefficient is not a polynomial in ``params`` (or there are no parameters)."""
     params = tuple(params)
-    flat = [sympy.sympify(e) for row in exprs for e in row]
+    flat = [e for row in exprs for e in row]  # sympy coefficients of sympy.Poly, not text
     if not params or not flat:
         return None
     degree = 0
