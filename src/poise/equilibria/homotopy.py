@@ -89,6 +89,9 @@ _PATHS_PER_CHUNK = 20_000
 _INFINITY = 1e-10
 # Condition number (of the row-scaled Jacobian) above which an endpoint is singular.
 _SINGULAR = 1e8
+# The corrector's last correction at s = 0 (relative to |X|) at or below this: Newton
+# converged quadratically (the next correction would be ~1e-22), nothing to refine.
+_CONVERGED = 1e-11
 
 
 @dataclass(frozen=True)
@@ -367,7 +370,7 @@ _DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
 def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
     """Track every path from s = 1 to s = 0; returns endpoints, path states, cycle
-    numbers and evaluations per path.
+    numbers, evaluations per path and the corrector's last correction at s = 0.
 
     A path ends ``_DONE`` (reached s = 0, by plain steps or by the endgame, which then
     reports its cycle number >= 1), ``_STALLED`` (steps collapsed close to s = 0 after
@@ -418,8 +421,8 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
     Returns endpoints, states, condition numbers, a flag for unresolved jumps and the
     evaluations each path took (all its tracking rounds).
     """
-    end, state, cycle, work = _track(hom, X, group, _NORMAL)
-    end, cond = _finish(hom, end, state, cycle, group)
+    end, state, cycle, work, last = _track(hom, X, group, _NORMAL)
+    end, cond = _finish(hom, end, state, cycle, last, group)
     for round_, cfg in enumerate(_RETRACK):
         redo = (state == _FAILED) | _duplicates(end, state, cond, per_group)
         if expected_infinite is not None and round_ == 0:
@@ -428,18 +431,20 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
             redo |= infinite & extra[group]
         if not redo.any():
             break
-        e, st, cy, w = _track(hom, X[redo], group[redo], cfg)
-        end[redo], cond[redo] = _finish(hom, e, st, cy, group[redo])
+        e, st, cy, w, la = _track(hom, X[redo], group[redo], cfg)
+        end[redo], cond[redo] = _finish(hom, e, st, cy, la, group[redo])
         state[redo], cycle[redo] = st, cy
         work[redo] += w
     return end, state, cond, _duplicates(end, state, cond, per_group), work
 
 
-def _finish(hom, end, state, cycle, group):
-    """Newton at s = 0: a few steps for clean endpoints, many for stalled (singular)
-    ones, none for the endgame's (all at infinity, where Newton has nothing to converge
-    to and could only move them)."""
-    budget = np.select([cycle > 0, state == _DONE, state == _STALLED], [0, 4, 60], 0)
+def _finish(hom, end, state, cycle, last, group):
+    """Newton at s = 0 and condition numbers: a few steps for clean endpoints, many for
+    stalled (singular) ones, none where the corrector's last correction shows quadratic
+    convergence already (``last`` <= _CONVERGED) nor for the endgame's (all at infinity,
+    where Newton has nothing to converge to and could only move them)."""
+    budget = np.select([cycle > 0, (state == _DONE) & (last <= _CONVERGED), state == _DONE,
+                        state == _STALLED], [0, 0, 4, 60], 0)
     return _refine(hom, end, group, budget)
 
 
