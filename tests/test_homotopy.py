@@ -509,3 +509,25 @@ def test_condition_number_matches_numpy_inverse():
     singular = np.array([[1.0, 2.0], [2.0, 4.0]], dtype=complex)
     assert _condition_1(singular, np.empty((2, 2), complex), np.empty(2, np.int64),
                         np.empty(2, complex)) > 1e15
+
+
+def test_roots_of_very_different_sizes_are_all_found():
+    # x ~ 1e-5 next to y ~ 1e3 in one system; reference: the quadratic formula by hand.
+    # x**2 + a x - 2 a**2 = 0 gives x = a or -2a; then y**2 + (2b + x) y - 3 b**2 = 0.
+    # (A corrector accepting points on an estimated next correction lost a root here in
+    # about 10 % of sets: the small coordinate was not converged.)
+    x, y, a, b = sympy.symbols("x y a b")
+    system = polynomial_form([(x - a) * (x + 2 * a), (y - b) * (y + 3 * b) + x * y], [x, y], [a, b])
+    rng = np.random.default_rng(12)
+    values = rng.uniform(0.5, 2.0, (300, 2)) * [1e-5, 1e3]
+    result = solve_batch(system, values)
+    assert (result.status == 0).all() and (result.count == 4).all()
+    for (av, bv), roots, in zip(values, result.roots):
+        expected = []
+        for xv in (av, -2 * av):
+            p = xv + 2 * bv
+            big = (-p - np.copysign(np.sqrt(p * p + 12 * bv * bv), p)) / 2
+            expected += [(xv, big), (xv, -3 * bv * bv / big)]  # product of roots: -3 b**2
+        # each expected root has its own found root, equal to 1e-7 in every coordinate
+        close = (np.abs(roots[:, None, :] - np.array(expected)[None]) <= 1e-7 * np.abs(expected)).all(axis=2)
+        assert close.sum(axis=0).tolist() == [1, 1, 1, 1], (av, bv, roots, expected)

@@ -70,7 +70,6 @@ Details:
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import product
@@ -79,6 +78,7 @@ import numpy as np
 import sympy
 
 from poise.equilibria import tracker
+from poise.equilibria.merge import unique_sorted
 from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
 
@@ -875,11 +875,10 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         message[sets[j]] = (f"{odd[j]} of {R} paths ended at a singular point off the real line "
                             "(a continuum of steady states, or a complex multiple root)")
     cand = np.flatnonzero(real)
-    pts, ok, sing = _polish_real(comp.table, x[cand].real, target[group[cand]],
-                                 singular[cand])
+    pts, ok, sing = _polish_real(comp.table, x[cand].real, target[group[cand]], cond[cand])
     keep = ok & _off_poles(comp, pts, den[sets][group[cand]], sing)
     cand_group = group[cand][keep]
-    roots, counts = _unique_sorted(pts[keep], sing[keep], cand_group, sets.size)
+    roots, counts = unique_sorted(pts[keep], sing[keep], cand_group, sets.size)
 
     out = np.full((b, roots.shape[1], n), np.nan)
     out[sets] = roots
@@ -897,11 +896,16 @@ def _flag(status, message, mask, text):
     message[new] = text
 
 
-def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, singular: np.ndarray):
+def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
     """Real Newton on the target; returns points, a convergence flag and singularity.
 
-    Multiple roots converge only linearly, so singular candidates get a longer budget.
+    ``cond``: the end points' condition numbers from tracking. Multiple roots converge
+    only linearly, so singular candidates get a longer budget. The condition number is
+    computed again at the real point only where tracking's was not clearly regular
+    (a point well below _SINGULAR moves by at most ~1e-7 relative here, which cannot
+    bring it near _SINGULAR).
     """
+    singular = cond >= _SINGULAR
     X = np.concatenate([np.ones((len(x), 1)), x], axis=1)
     budget = np.where(singular, 60, 8)
     todo = np.arange(len(x))
@@ -918,8 +922,9 @@ def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, singular: np.ndarr
         F, _ = _evaluate(table, X, C, jacobian=False)
         residual = np.abs(F) / _term_bound(table, X, C)
         ok = np.isfinite(X).all(axis=1) & (residual <= 1e-9).all(axis=1)
-        cond = _condition(table, X, C)
-    return X[:, 1:], ok, singular | (cond >= _SINGULAR)
+        doubtful = np.flatnonzero(cond >= _SINGULAR / 100)
+        singular[doubtful] |= _condition(table, X[doubtful], C[doubtful]) >= _SINGULAR
+    return X[:, 1:], ok, singular
 
 
 def _term_bound(table: _Table, X: np.ndarray, C: np.ndarray, jacobian: bool = False):
@@ -954,41 +959,3 @@ def _off_poles(comp: _Compiled, x: np.ndarray, den: np.ndarray, singular: np.nda
     tol = np.where(singular, 1e-7, 1e-11)[:, None]
     pole = np.abs(values) <= tol * _term_bound(comp.denominator_table, X, den)
     return ~(pole[:, comp.denominator_has_state]).any(axis=1)
-
-
-def _unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, G: int):
-    """Merge duplicates within each group, sort, and pad to (G, R, n)."""
-    n = x.shape[1]
-    order = np.lexsort(tuple(x[:, j] for j in range(n - 1, -1, -1)) + (group,))
-    x, singular, group = x[order], singular[order], group[order]
-    counts = np.bincount(group, minlength=G)
-    width = int(counts.max(initial=0))
-    pos = np.arange(len(x)) - np.repeat(np.cumsum(counts) - counts, counts)
-    pts = np.full((G, width, n), np.nan)
-    pts[group, pos] = x
-    sing = np.zeros((G, width), dtype=bool)
-    sing[group, pos] = singular
-    # two roots are one when every coordinate agrees to a relative tolerance (loose if
-    # either is singular); each coordinate's median size over the set's roots sets its
-    # floor, so copies of a root at zero merge whatever units the states have (1e-9
-    # when every root is ~0: a problem without a length scale, e.g. x**3 = 0). The
-    # median, not the largest: one huge root must not merge distinct small ones.
-    absolute = np.where(np.isfinite(pts), np.abs(pts), 0.0)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # sets with no root: all-NaN
-        typical = np.nanmedian(np.abs(pts), axis=1)
-    floor = np.maximum(np.nan_to_num(typical, nan=0.0), 1e-9)[:, None, None, :]
-    gap = np.abs(pts[:, :, None, :] - pts[:, None, :, :])
-    size = np.maximum(absolute[:, :, None, :], absolute[:, None, :, :]) + floor
-    rel = np.where(sing[:, :, None] | sing[:, None, :], 1e-4, 1e-7)[..., None]
-    with np.errstate(invalid="ignore"):
-        same = np.triu((gap <= rel * size).all(axis=-1), k=1)  # pairs (earlier, later)
-    dup = same.any(axis=1)               # a later copy of an earlier root
-    valid = np.isfinite(pts).all(axis=-1) & ~dup
-    counts = valid.sum(axis=1)
-    width = int(counts.max(initial=0))
-    out = np.full((G, width, n), np.nan)
-    gi, ri = np.nonzero(valid)
-    pos = np.arange(len(gi)) - np.repeat(np.cumsum(counts) - counts, counts)
-    out[gi, pos] = pts[gi, ri]
-    return out, counts

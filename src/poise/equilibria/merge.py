@@ -1,0 +1,98 @@
+"""Merge copies of one root within each parameter set, and sort (compiled).
+
+Several paths of a homotopy can end at the same real root (a multiple root, or copies
+polished onto one point); each set's roots are merged and sorted in one compiled pass
+per set, so the cost does not grow with the square of the widest set, and nothing
+depends on the other sets of the batch.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+# relative tolerance for "the same root": simple roots are accurate to rounding, multiple
+# roots only to about eps**(1/m)
+SAME_SIMPLE, SAME_SINGULAR = 1e-7, 1e-4
+# a coordinate's floor when every root of the set is ~0 (no length scale, e.g. x**3 = 0)
+FLOOR = 1e-9
+
+
+def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups: int):
+    """Roots (groups, width, n) padded with NaN, each set's sorted lexicographically
+    with copies merged, and their counts (groups,).
+
+    Two roots are one when every coordinate agrees to a relative tolerance (looser if
+    either is singular). Each coordinate's median size over the set's roots sets its
+    floor, so copies of a root at zero merge whatever units the states have; the
+    median, not the largest: one huge root must not merge distinct small ones.
+    """
+    x = np.ascontiguousarray(x, dtype=float)
+    order = np.argsort(group, kind="stable")
+    starts = np.searchsorted(group[order], np.arange(groups + 1))
+    return _merge(x[order], np.ascontiguousarray(singular[order], dtype=np.bool_),
+                  starts.astype(np.int64))
+
+
+@njit(cache=True)
+def _before(a, b):
+    """a < b lexicographically."""
+    for j in range(a.shape[0]):
+        if a[j] != b[j]:
+            return a[j] < b[j]
+    return False
+
+
+@njit(cache=True)
+def _merge(x, singular, starts):
+    G = starts.shape[0] - 1
+    n = x.shape[1]
+    counts = np.zeros(G, dtype=np.int64)
+    width = 0
+    for g in range(G):
+        width = max(width, starts[g + 1] - starts[g])
+    out = np.full((G, width, n), np.nan)
+    keep = np.empty(width, dtype=np.int64)
+    idx = np.empty(width, dtype=np.int64)
+    floor = np.empty(n)
+    sizes = np.empty(width)
+    for g in range(G):
+        lo, m = starts[g], starts[g + 1] - starts[g]
+        if m == 0:
+            continue
+        # insertion sort of the set's rows (a set has few roots)
+        for a in range(m):
+            idx[a] = lo + a
+            b = a
+            while b > 0 and _before(x[idx[b]], x[idx[b - 1]]):
+                idx[b], idx[b - 1] = idx[b - 1], idx[b]
+                b -= 1
+        for j in range(n):
+            for a in range(m):
+                sizes[a] = abs(x[idx[a], j])
+            floor[j] = max(np.median(sizes[:m]), FLOOR)
+        kept = 0
+        for a in range(m):
+            duplicate = False
+            for b in range(a):  # any earlier root, merged or not, as the vectorised rule
+                rel = SAME_SINGULAR if singular[idx[a]] or singular[idx[b]] else SAME_SIMPLE
+                same = True
+                for j in range(n):
+                    p, r = x[idx[a], j], x[idx[b], j]
+                    if not abs(p - r) <= rel * (max(abs(p), abs(r)) + floor[j]):
+                        same = False
+                        break
+                if same:
+                    duplicate = True
+                    break
+            if not duplicate:
+                keep[kept] = idx[a]
+                kept += 1
+        for a in range(kept):
+            for j in range(n):
+                out[g, a, j] = x[keep[a], j]
+        counts[g] = kept
+    real_width = 0
+    for g in range(G):
+        real_width = max(real_width, counts[g])
+    return out[:, :real_width].copy(), counts
