@@ -45,7 +45,10 @@ path and the endgame's circles):
   (multiple roots) are left to plain steps, which stall near ``s = 0`` and are refined
   by Newton: circles that also enclose other branch points close to ``s = 0`` (a
   cluster of nearby simple roots) average distinct roots, and for small roots nothing
-  on the circle tells that average from a multiple root. The endgame's gain is the
+  on the circle tells that average from a multiple root (nor does the Jacobian's
+  condition number at the average: in the units of ``|X|`` a cluster much smaller than
+  ``|X|`` looks singular too; tried, it merged a triple root at ~1e-3 with a simple
+  root 2e-3 away, and four roots of size 1e-6). The endgame's gain is the
   paths that diverge to a singular point at infinity, which plain steps follow down to
   ``s ~ 1e-11`` at hundreds of evaluations. An endgame that does not settle hands the
   path back to plain steps.
