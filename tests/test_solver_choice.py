@@ -71,20 +71,29 @@ def test_auto_chooses_by_counted_work_and_homotopy_is_refused_for_non_rational_m
     assert status == 2 and "[solver]" in err and "method" in err
 
 
-def test_a_resumed_run_keeps_the_finder_its_saved_chunks_used(tmp_path):
+def test_a_resumed_run_keeps_the_finder_its_saved_chunks_used(tmp_path, monkeypatch):
     # design requirement: nothing mixes two finders in one run, even if "auto" would
-    # decide differently when the run is resumed
+    # decide differently when the run is resumed; the saved choice is reported again
+    # and the choice's probe is not run a second time
     import json
+
+    import poise.equilibria.choice as choice
     study = load_study(write_study(tmp_path, COMPETITION.format(size=40, solver=""), "r.toml"))
     out = tmp_path / "run"
-    first = run_study(study, out, jobs=1, report=False, chunk_size=10).summary["solver"]["method"]
-    other = "newton" if first == "homotopy" else "homotopy"
+    first = run_study(study, out, jobs=1, report=False, chunk_size=10).summary["solver"]
+    other = "newton" if first["method"] == "homotopy" else "homotopy"
     manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["solver_choice"] == first["choice"]
     manifest.update(solver=other, complete=False)
     manifest["chunks"].pop(sorted(manifest["chunks"])[-1])
     (out / "manifest.json").write_text(json.dumps(manifest))
+
+    def no_probe(*args, **kwargs):
+        raise AssertionError("the choice was made again on resume")
+
+    monkeypatch.setattr(choice, "choose", no_probe)
     resumed = run_study(study, out, jobs=1, report=False, chunk_size=10, resume=True).summary["solver"]
-    assert resumed["method"] == other and "choice" not in resumed
+    assert resumed["method"] == other and resumed["choice"] == first["choice"]
 
 
 def test_homotopy_and_newton_agree_with_the_closed_form(tmp_path):

@@ -121,14 +121,17 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
                          sobol_indices=sobol, second_order=study.sensitivity.second_order)
     params = map_to_parameters(design, study.uncertain)
     model = compile_model(study)
-    method, estimate = choose(study, model)
 
     manifest = _prepare_directory(directory, study, design.n_rows, chunk_size, resume)
-    if manifest.get("chunks") and manifest.get("solver") not in (None, method):
+    if manifest.get("chunks") and manifest.get("solver"):
         # resuming: finish with the finder the saved chunks used (an "auto" choice near
-        # its threshold could come out differently on another machine or library version)
-        method, estimate = manifest["solver"], None
-    manifest.update(solver=method, design=study.sampling.design)
+        # its threshold could come out differently on another machine or library
+        # version), and skip the choice's probe
+        method, choice = manifest["solver"], manifest.get("solver_choice")
+    else:
+        method, estimate = choose(study, model)
+        choice = estimate.as_dict() if estimate is not None else None
+    manifest.update(solver=method, solver_choice=choice, design=study.sampling.design)
     write_manifest(directory, manifest)
     bar = Progress(design.n_rows, enabled=progress)
     manifest = execute(directory, manifest, str(study.path), study.text, params, method,
@@ -140,7 +143,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         samples[name] = params[:, j]
     outcomes, tallies = assemble(directory, manifest, samples)
     summary = _summary(study, outcomes, tallies, design, sobol)
-    summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params)
+    summary["solver"] = _solver_summary(study, model, method, choice, outcomes, params)
     write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
     manifest.update(complete=True, seconds=round(time.time() - started, 3))
     write_manifest(directory, manifest)
@@ -169,7 +172,7 @@ def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool)
     }
 
 
-def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.DataFrame,
+def _solver_summary(study: Study, model, method: str, choice: dict | None, outcomes: pd.DataFrame,
                     params: np.ndarray) -> dict:
     """Which finder ran, why (for "auto": the work estimate), and, for multistart
     Newton, how often it missed a steady state on a re-solved random subsample
@@ -178,8 +181,8 @@ def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.Dat
     from poise.equilibria.choice import polynomial_system
 
     entry = {"method": method, "requested": study.solver.method}
-    if estimate is not None:
-        entry["choice"] = estimate.as_dict()
+    if choice is not None:
+        entry["choice"] = choice
     if method == "newton":
         reference = "homotopy" if polynomial_system(model) is not None else "newton"
         entry["completeness"] = completeness_check(study, model, outcomes, params, reference,
@@ -217,6 +220,7 @@ def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: i
             fresh["chunks"] = existing.get("chunks", {})
             if fresh["chunks"] and existing.get("solver"):
                 fresh["solver"] = existing["solver"]  # the finder the saved chunks used
+                fresh["solver_choice"] = existing.get("solver_choice")
         elif resume or not existing.get("complete"):
             raise InputError(
                 f"this directory holds {'a' if existing.get('complete') else 'an unfinished'} "

@@ -423,19 +423,22 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
     """
     end, state, cycle, work, last = _track(hom, X, group, _NORMAL)
     end, cond = _finish(hom, end, state, cycle, last, group)
+    finite = _finite(end)
+    jumped = _duplicates(end, state, cond, finite, per_group)
     for round_, cfg in enumerate(_RETRACK):
-        redo = (state == _FAILED) | _duplicates(end, state, cond, per_group)
+        redo = (state == _FAILED) | jumped
         if expected_infinite is not None and round_ == 0:
-            infinite = ~_finite(end)
-            extra = np.bincount(group[infinite], minlength=len(expected_infinite)) > expected_infinite
-            redo |= infinite & extra[group]
+            extra = np.bincount(group[~finite], minlength=len(expected_infinite)) > expected_infinite
+            redo |= ~finite & extra[group]
         if not redo.any():
             break
         e, st, cy, w, la = _track(hom, X[redo], group[redo], cfg)
         end[redo], cond[redo] = _finish(hom, e, st, cy, la, group[redo])
         state[redo], cycle[redo] = st, cy
         work[redo] += w
-    return end, state, cond, _duplicates(end, state, cond, per_group), work
+        finite[redo] = _finite(end[redo])
+        jumped = _duplicates(end, state, cond, finite, per_group)
+    return end, state, cond, jumped, work
 
 
 def _finish(hom, end, state, cycle, last, group):
@@ -450,16 +453,17 @@ def _finish(hom, end, state, cycle, last, group):
 
 def _finite(end: np.ndarray) -> np.ndarray:
     """Endpoints not at infinity: ``|X_0| > _INFINITY |X|``."""
-    return np.abs(end[:, 0]) > _INFINITY * _norm(end)
+    head = end[:, 0].real ** 2 + end[:, 0].imag ** 2
+    return head > _INFINITY ** 2 * (end.real ** 2 + end.imag ** 2).sum(axis=1)
 
 
-def _duplicates(end, state, cond, per_group: int) -> np.ndarray:
+def _duplicates(end, state, cond, finite, per_group: int) -> np.ndarray:
     """Paths ending on the same well-conditioned finite point as another path of their group.
 
     Several paths may legitimately end at one point at infinity or at a multiple root;
     at a finite nonsingular root, only one can.
     """
-    clean = (state == _DONE) & _finite(end) & (cond < _SINGULAR / 100)
+    clean = (state == _DONE) & finite & (cond < _SINGULAR / 100)
     points = np.ascontiguousarray(np.where(clean[:, None], end, np.nan), dtype=complex)
     return tracker.near_pairs(points, max(per_group, 1), 1e-7)[0]
 
