@@ -535,7 +535,7 @@ def refine_paths(exps, live, chart, C, group, X, budget):
 
     The condition number is that of the Jacobian with each polynomial row divided by the
     size its entries can have at this |X| (``sum_k |c_k| deg_k |X|_max**(deg_k - 1)``),
-    in the 1-norm (an entry's size taken as |re| + |im|). The scale is a bound, not the row's current length: at a multiple
+    in the 1-norm. The scale is a bound, not the row's current length: at a multiple
     root a whole row can vanish, and scaling it to unit length would hide exactly that.
     """
     N, nv = X.shape
@@ -546,6 +546,9 @@ def refine_paths(exps, live, chart, C, group, X, budget):
     A = np.empty((nv, nv), dtype=np.complex128)
     perm = np.empty(nv, dtype=np.int64)
     degree = exps.sum(axis=2)
+    cmax = 0.0
+    for j in range(nv):
+        cmax = max(cmax, abs(chart[j]))
     out = np.empty((N, nv), dtype=np.complex128)
     cond = np.empty(N)
     for p in range(N):
@@ -570,16 +573,14 @@ def refine_paths(exps, live, chart, C, group, X, budget):
         _system(P, 0j, x, W, J, False)
         radius = 0.0
         for j in range(nv):
-            radius = max(radius, _size(x[j]))
-        cmax = 0.0
-        for j in range(nv):
-            cmax = max(cmax, _size(chart[j]))
+            radius = max(radius, x[j].real * x[j].real + x[j].imag * x[j].imag)
+        radius = np.sqrt(radius)
         for i in range(q):
             bound = 0.0
             for k in range(K):
                 d = degree[i, k]
                 if live[i, k] and d > 0:
-                    bound += _size(C[group[p], i, k, 0]) * d * radius ** (d - 1)
+                    bound += abs(C[group[p], i, k, 0]) * d * radius ** (d - 1)
             if bound == 0.0:
                 bound = 1.0
             for j in range(nv):
@@ -598,14 +599,15 @@ def _size(z):
 
 @njit(cache=True)
 def _condition_1(J, A, perm, y):
-    """||J||_1 ||J^-1||_1, each entry measured by |re| + |im| (inf when J is singular or
-    not finite): one LU factorisation, then the columns of J^-1 one at a time."""
+    """||J||_1 ||J^-1||_1 (inf when J is singular or not finite): one LU factorisation,
+    then the columns of J^-1 one at a time. Entries are measured by |z| (the thresholds
+    on it were set for that measure); |re| + |im| only chooses the pivots."""
     n = J.shape[0]
     norm_j = 0.0
     for c in range(n):
         col = 0.0
         for r in range(n):
-            col += _size(J[r, c])
+            col += abs(J[r, c])
             A[r, c] = J[r, c]
         norm_j = max(norm_j, col)
     if not np.isfinite(norm_j):
@@ -642,7 +644,7 @@ def _condition_1(J, A, perm, y):
             for m in range(r + 1, n):
                 t -= A[r, m] * y[m]
             y[r] = t * A[r, r]
-            total += _size(y[r])
+            total += abs(y[r])
         norm_inv = max(norm_inv, total)
     result = norm_j * norm_inv
     if not np.isfinite(result):
