@@ -905,9 +905,11 @@ def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
 
     ``cond``: the end points' condition numbers from tracking. Multiple roots converge
     only linearly, so singular candidates get a longer budget. The condition number is
-    computed again at the real point only where tracking's was not clearly regular
-    (a point well below _SINGULAR moves by at most ~1e-7 relative here, which cannot
-    bring it near _SINGULAR).
+    computed again at the real point only where tracking's was not clearly regular:
+    a point well below _SINGULAR moves by at most ~1e-7 relative here, which cannot
+    bring it near _SINGULAR. (The two measures differ: tracking's is taken in
+    homogeneous coordinates, this one in the states' own units, where roots whose
+    coordinates span many decades can look singular although tracking separated them.)
     """
     singular = cond >= _SINGULAR
     X = np.concatenate([np.ones((len(x), 1)), x], axis=1)
