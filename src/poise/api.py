@@ -103,7 +103,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
     chunk_size : parameter sets per chunk (default ``[run] chunk_size``).
     report : write report.md, report.html, tables and figures.
     """
-    from poise.equilibria.choice import choose
+    from poise.equilibria.choice import WorkEstimate, choose
     from poise.model import compile_model
     from poise.sampling import make_design, map_to_parameters
 
@@ -127,11 +127,12 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         # resuming: finish with the finder the saved chunks used (an "auto" choice near
         # its threshold could come out differently on another machine or library
         # version), and skip the choice's probe
-        method, choice = manifest["solver"], manifest.get("solver_choice")
+        method, saved = manifest["solver"], manifest.get("solver_choice")
+        estimate = WorkEstimate(**saved) if saved else None
     else:
         method, estimate = choose(study, model)
-        choice = estimate.as_dict() if estimate is not None else None
-    manifest.update(solver=method, solver_choice=choice, design=study.sampling.design)
+    manifest.update(solver=method, solver_choice=dataclasses.asdict(estimate) if estimate else None,
+                    design=study.sampling.design)
     write_manifest(directory, manifest)
     bar = Progress(design.n_rows, enabled=progress)
     manifest = execute(directory, manifest, str(study.path), study.text, params, method,
@@ -143,7 +144,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         samples[name] = params[:, j]
     outcomes, tallies = assemble(directory, manifest, samples)
     summary = _summary(study, outcomes, tallies, design, sobol)
-    summary["solver"] = _solver_summary(study, model, method, choice, outcomes, params)
+    summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params)
     write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
     manifest.update(complete=True, seconds=round(time.time() - started, 3))
     write_manifest(directory, manifest)
@@ -172,7 +173,7 @@ def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool)
     }
 
 
-def _solver_summary(study: Study, model, method: str, choice: dict | None, outcomes: pd.DataFrame,
+def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.DataFrame,
                     params: np.ndarray) -> dict:
     """Which finder ran, why (for "auto": the work estimate), and, for multistart
     Newton, how often it missed a steady state on a re-solved random subsample
@@ -181,8 +182,8 @@ def _solver_summary(study: Study, model, method: str, choice: dict | None, outco
     from poise.equilibria.choice import polynomial_system
 
     entry = {"method": method, "requested": study.solver.method}
-    if choice is not None:
-        entry["choice"] = choice
+    if estimate is not None:
+        entry["choice"] = estimate.as_dict()
     if method == "newton":
         reference = "homotopy" if polynomial_system(model) is not None else "newton"
         entry["completeness"] = completeness_check(study, model, outcomes, params, reference,
