@@ -526,3 +526,38 @@ def test_roots_of_very_different_sizes_are_all_found():
         # each expected root has its own found root, equal to 1e-7 in every coordinate
         close = (np.abs(roots[:, None, :] - np.array(expected)[None]) <= 1e-7 * np.abs(expected)).all(axis=2)
         assert close.sum(axis=0).tolist() == [1, 1, 1, 1], (av, bv, roots, expected)
+
+
+def test_start_velocities_match_sympy_derivatives():
+    # reference: the Davidenko equation dX/ds = -[H_X; chart]^-1 [H_s; 0] with H_X and
+    # H_s differentiated by sympy, for a path whose coefficients at s = 1 are the hub's
+    # times a factor per row (as after scaling each target equation)
+    from poise.equilibria import tracker
+
+    rng = np.random.default_rng(8)
+    exps = np.array([[[2, 1, 0], [0, 2, 1], [1, 0, 2], [3, 0, 0]],
+                     [[0, 3, 0], [1, 1, 1], [2, 0, 1], [0, 0, 3]]], dtype=np.int64)
+    live = np.ones((2, 4), dtype=bool)
+    live[1, 3] = False
+
+    def cnormal(*shape):
+        return rng.normal(size=shape) + 1j * rng.normal(size=shape)
+
+    chart = cnormal(3)
+    hub = np.where(live, cnormal(2, 4), 0)
+    roots = cnormal(1, 2, 3)                        # any points: the formula holds anywhere
+    factors = tracker.start_factors(exps, live, chart, hub[None, ..., None], roots)
+    row = cnormal(2)
+    slope = np.where(live, cnormal(2, 4), 0)
+    C = np.stack([hub * row[:, None] - slope, slope], axis=-1)[None]   # c(s) = C0 + s C1
+    V = tracker.start_velocities(live, C, np.zeros(2, np.int64), np.arange(2), *factors)
+
+    X = sympy.symbols("X0:3")
+    s = sympy.Symbol("s")
+    H = [sum((C[0, i, k, 0] + s * C[0, i, k, 1]) * sympy.prod([X[j] ** int(exps[i, k, j]) for j in range(3)])
+             for k in range(4) if live[i, k]) for i in range(2)]
+    for r in range(2):
+        at = dict(zip(X, roots[0, r])) | {s: 1}
+        J = np.array([[complex(sympy.diff(h, x).subs(at)) for x in X] for h in H] + [list(chart)])
+        Hs = np.array([complex(sympy.diff(h, s).subs(at)) for h in H] + [0])
+        np.testing.assert_allclose(V[r], -np.linalg.solve(J, Hs), rtol=1e-10)

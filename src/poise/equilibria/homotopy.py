@@ -70,6 +70,7 @@ Details:
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import product
@@ -333,6 +334,9 @@ class _Homotopy:
     # typical size of each coordinate: step acceptance measures corrections in units of
     # it, so a small coordinate (a scarce species) is not drowned by a large one
     weight: np.ndarray | None = None
+    # `tracker.start_factors` of the points the paths leave from (hub roots), when
+    # known: the first velocity of each path then costs no evaluation
+    origins: tuple | None = None
 
     def arrays(self):
         exps, live = self.table.arrays()
@@ -368,18 +372,26 @@ _RETRACK = (_Settings(h_init=0.01, h_max=0.02, beta=1e-5, endgame=False),
 _DONE, _FAILED, _STALLED = tracker.DONE, tracker.FAILED, tracker.STALLED
 
 
-def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings):
+def _track(hom: _Homotopy, X: np.ndarray, group: np.ndarray, cfg: _Settings,
+           origin: np.ndarray | None = None):
     """Track every path from s = 1 to s = 0; returns endpoints, path states, cycle
     numbers, evaluations per path and the corrector's last correction at s = 0.
+    ``origin``: each path's start point in ``hom.origins``, if any.
 
     A path ends ``_DONE`` (reached s = 0, by plain steps or by the endgame, which then
     reports its cycle number >= 1), ``_STALLED`` (steps collapsed close to s = 0 after
     the endgame did not settle: a singular endpoint) or ``_FAILED`` (steps collapsed, or
     out of iterations, far from s = 0).
     """
+    exps, live, chart, C = hom.arrays()
+    group = np.ascontiguousarray(group, dtype=np.int64)
+    if hom.origins is not None and origin is not None:
+        V0 = tracker.start_velocities(live, C, group, np.ascontiguousarray(origin, dtype=np.int64),
+                                      *hom.origins)
+    else:
+        V0 = np.empty((0, X.shape[1]), dtype=complex)
     return tracker.track_paths(
-        *hom.arrays(), np.ascontiguousarray(group, dtype=np.int64),
-        np.ascontiguousarray(X, dtype=complex),
+        exps, live, chart, C, group, np.ascontiguousarray(X, dtype=complex), V0,
         np.ones(X.shape[1]) if hom.weight is None else np.ascontiguousarray(hom.weight, dtype=float),
         cfg.h_init, cfg.h_max, cfg.beta, cfg.tol,
         cfg.newton_steps, cfg.max_iterations, cfg.s_stop, cfg.endgame)
@@ -410,18 +422,18 @@ def _condition(table: _Table, X: np.ndarray, C: np.ndarray) -> np.ndarray:
 
 
 def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
-               expected_infinite: np.ndarray | None = None):
+               expected_infinite: np.ndarray | None = None, origin: np.ndarray | None = None):
     """Track, refine, and re-track failed or jumping paths with tighter settings.
 
     Paths are group-major: ``per_group`` consecutive paths belong to one group.
     ``expected_infinite`` (per group): how many paths end at infinity at the hub the
     group starts from. A group with more has probably had a path jump onto a path that
     diverges (a lost root, invisible to the duplicate test); its infinite paths are
-    tracked again with the first tighter setting.
+    tracked again with the first tighter setting. ``origin``: see `_track`.
     Returns endpoints, states, condition numbers, a flag for unresolved jumps and the
     evaluations each path took (all its tracking rounds).
     """
-    end, state, cycle, work, last = _track(hom, X, group, _NORMAL)
+    end, state, cycle, work, last = _track(hom, X, group, _NORMAL, origin)
     end, cond = _finish(hom, end, state, cycle, last, group)
     finite = _finite(end)
     jumped = _duplicates(end, state, cond, finite, per_group)
@@ -432,7 +444,7 @@ def _track_all(hom: _Homotopy, X: np.ndarray, group: np.ndarray, per_group: int,
             redo |= ~finite & extra[group]
         if not redo.any():
             break
-        e, st, cy, w, la = _track(hom, X[redo], group[redo], cfg)
+        e, st, cy, w, la = _track(hom, X[redo], group[redo], cfg, None if origin is None else origin[redo])
         end[redo], cond[redo] = _finish(hom, e, st, cy, la, group[redo])
         state[redo], cycle[redo] = st, cy
         work[redo] += w
@@ -651,6 +663,8 @@ class _Hubs:
     # (H, m) complex start parameters when targets are reached along lines in parameter
     # space (`poise.equilibria.parameter_path`); None for lines in coefficient space
     params: np.ndarray | None = None
+    # `tracker.start_factors` at every root of every hub (set by `_hub_start`)
+    factors: tuple | None = None
 
 
 @lru_cache(maxsize=8)
@@ -672,11 +686,18 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     with np.errstate(all="ignore"):
         usable = np.isfinite(coef).all(axis=(1, 2)) & ~(coef == 0).all(axis=2).any(axis=1)
         anchor = coef[usable] / np.abs(coef[usable]).max(axis=2, keepdims=True)
+    hubs = None
     if len(start.roots) and len(anchor) and comp.family is not None:
         hubs = _parameter_hubs(comp, start, params[usable], anchor, seed)
-        if hubs is not None:
-            return hubs
-    return _coefficient_hubs(comp, start, anchor, seed)
+    if hubs is None:
+        hubs = _coefficient_hubs(comp, start, anchor, seed)
+    if not hubs.roots.size:
+        return hubs
+    exps, live = comp.table.arrays()
+    factors = tracker.start_factors(exps, live, np.ascontiguousarray(start.chart, dtype=complex),
+                                    np.ascontiguousarray(hubs.coefficients[..., None], dtype=complex),
+                                    np.ascontiguousarray(hubs.roots, dtype=complex))
+    return dataclasses.replace(hubs, factors=factors)
 
 
 def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: int) -> _Hubs:
@@ -845,14 +866,17 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
             hom = _Homotopy(comp.table, start.chart, C, hubs.weight)
         else:
             hom = _line(comp.table, start.chart, C0, hubs.coefficients[near], hubs.weight)
+        hom = dataclasses.replace(hom, origins=hubs.factors)
         X = hubs.roots[near].reshape(sets.size * R, -1)
+        origin = (near[:, None] * R + np.arange(R)).ravel()
         expected = hubs.infinite[near]
     else:
-        expected = None
+        expected = origin = None
         hom = _line(comp.table, start.chart, C0, start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
     group = np.repeat(np.arange(sets.size), R)
-    end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R, expected_infinite=expected)
+    end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R, expected_infinite=expected,
+                                                origin=origin)
 
     failed = np.bincount(group[state == _FAILED], minlength=sets.size)
     jumps = np.bincount(group[jumped], minlength=sets.size)
