@@ -561,3 +561,19 @@ def test_start_velocities_match_sympy_derivatives():
         J = np.array([[complex(sympy.diff(h, x).subs(at)) for x in X] for h in H] + [list(chart)])
         Hs = np.array([complex(sympy.diff(h, s).subs(at)) for h in H] + [0])
         np.testing.assert_allclose(V[r], -np.linalg.solve(J, Hs), rtol=1e-10)
+
+
+@pytest.mark.parametrize("with_hubs", [False, True])
+def test_a_cluster_of_roots_far_smaller_than_another_root_is_resolved(with_hubs):
+    # roots a, 2a, 3a with a ~ 1e-5 next to -b ~ -1: relative to the whole point the
+    # three are within 1e-5 of each other, their paths stall near s = 0, and the set is
+    # solved again in units of the small roots. Reference: the factors themselves.
+    x, a, b = sympy.symbols("x a b")
+    system = polynomial_form([(x - a) * (x - 2 * a) * (x - 3 * a) * (x + b)], [x], [a, b])
+    rng = np.random.default_rng(31)
+    values = rng.uniform(0.5, 2.0, (200, 2)) * [1e-5, 1.0]
+    hubs = rng.uniform(0.5, 2.0, (24, 2)) * [1e-5, 1.0] if with_hubs else None
+    result = solve_batch(system, values, hubs=hubs)
+    assert (result.status == 0).all() and (result.count == 4).all()
+    for (av, bv), roots in zip(values, result.roots):
+        np.testing.assert_allclose(np.sort(roots[:, 0]), [-bv, av, 2 * av, 3 * av], rtol=1e-9)

@@ -90,6 +90,10 @@ _PATHS_PER_CHUNK = 20_000
 _INFINITY = 1e-10
 # Condition number (of the row-scaled Jacobian) above which an endpoint is singular.
 _SINGULAR = 1e8
+# a point where a path stalled is a regular root in its own units when, after
+# _OWN_NEWTON Newton steps in those units, the last step is below _OWN_SETTLED of it
+# (see `_rescaled_roots`)
+_OWN_NEWTON, _OWN_SETTLED = 3, 1e-12
 # The corrector's last correction at s = 0 (relative to |X|) at or below this: Newton
 # converged quadratically (the next correction would be ~1e-22), nothing to refine.
 _CONVERGED = 1e-11
@@ -405,10 +409,12 @@ def _refine(hom: _Homotopy, X: np.ndarray, group: np.ndarray, iterations: np.nda
                                 np.ascontiguousarray(iterations, dtype=np.int64))
 
 
-def _condition(table: _Table, X: np.ndarray, C: np.ndarray) -> np.ndarray:
+def _condition(table: _Table, X: np.ndarray, C: np.ndarray, relative: bool = True) -> np.ndarray:
     """Condition number of the Jacobian at affine points (``X_0 = 1``), each row scaled
     by the size its entries can have (a bound from the coefficients and ``|x|``, not the
-    row's current length, which vanishes at a multiple root)."""
+    row's current length, which vanishes at a multiple root). With ``relative`` False,
+    1 / (smallest singular value) of that scaled Jacobian instead: the ratio is 1 for
+    any 1 x 1 Jacobian, however close to zero."""
     with np.errstate(all="ignore"):
         _, J = _evaluate(table, X, C)
         J = J[..., 1:]
@@ -417,7 +423,7 @@ def _condition(table: _Table, X: np.ndarray, C: np.ndarray) -> np.ndarray:
         ok = np.isfinite(J).all(axis=(1, 2))
         J = np.where(ok[:, None, None], J, 0.0)
         sv = np.linalg.svd(J, compute_uv=False)
-        cond = sv[:, 0] / sv[:, -1]
+        cond = (sv[:, 0] if relative else 1.0) / sv[:, -1]
     return np.where(ok & np.isfinite(cond), cond, np.inf)
 
 
@@ -875,8 +881,8 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         hom = _line(comp.table, start.chart, C0, start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
     group = np.repeat(np.arange(sets.size), R)
-    end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R, expected_infinite=expected,
-                                                origin=origin)
+    end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R,
+                                                expected_infinite=expected, origin=origin)
 
     failed = np.bincount(group[state == _FAILED], minlength=sets.size)
     jumps = np.bincount(group[jumped], minlength=sets.size)
@@ -886,14 +892,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         message[sets[j]] = (f"{failed[j]} of {R} paths failed, {jumps[j]} ended on a "
                             "duplicate root; steady states may be missing")
 
-    # finite endpoints with a small imaginary part are candidate real roots
-    usable = (state == _DONE) | (state == _STALLED)
-    with np.errstate(all="ignore"):
-        finite = usable & _finite(end)
-        x = end[:, 1:] / end[:, :1]
-        singular = cond >= _SINGULAR
-        im_tol = np.where(singular, 1e-4, 1e-7) * (1.0 + np.abs(x).max(axis=1))
-        real = finite & np.isfinite(x).all(axis=1) & (np.abs(x.imag).max(axis=1) <= im_tol)
+    x, real, finite, singular = _real_candidates(end, state, cond)
     # a path ending at a singular point off the real line: a continuum of steady states
     # (paths land on a generic, complex point of it) or a complex multiple root; the
     # set is flagged so that the caller can solve it another way
@@ -903,18 +902,112 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         message[sets[j]] = (f"{odd[j]} of {R} paths ended at a singular point off the real line "
                             "(a continuum of steady states, or a complex multiple root)")
     cand = np.flatnonzero(real)
-    pts, ok, sing = _polish_real(comp.table, x[cand].real, target[group[cand]], cond[cand])
-    keep = ok & _off_poles(comp, pts, den[sets][group[cand]], sing)
-    cand_group = group[cand][keep]
-    roots, counts = unique_sorted(pts[keep], sing[keep], cand_group, sets.size)
+    points, owner, point_cond = x[cand].real, group[cand], cond[cand]
+    work = np.bincount(group, weights=work, minlength=sets.size)
+
+    # a path stalled (steps collapsed near s = 0) at a point that is a regular root in
+    # its own units: roots much smaller than the point's size crowd together there;
+    # such a set is solved again in units of that root, and the union kept
+    stalled = np.flatnonzero((state == _STALLED) & finite)
+    if stalled.size:
+        extra = _rescaled_roots(comp, start, target, group[stalled], x[stalled])
+        points = np.concatenate([points, extra.points])
+        owner = np.concatenate([owner, extra.owner])
+        point_cond = np.concatenate([point_cond, extra.cond])
+        work += extra.work
+        for j in extra.incomplete[status[sets[extra.incomplete]] == 0]:
+            status[sets[j]] = 1
+            message[sets[j]] = ("roots of very different sizes: solving again in units of the "
+                                "small ones lost paths; steady states may be missing")
+
+    pts, ok, sing = _polish_real(comp.table, points, target[owner], point_cond)
+    keep = ok & _off_poles(comp, pts, den[sets][owner], sing)
+    roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size)
 
     out = np.full((b, roots.shape[1], n), np.nan)
     out[sets] = roots
     all_counts = np.zeros(b, dtype=int)
     all_counts[sets] = counts
     all_work = np.zeros(b, dtype=np.int64)
-    all_work[sets] = np.bincount(group, weights=work, minlength=sets.size).astype(np.int64)
+    all_work[sets] = work.astype(np.int64)
     return out, all_counts, status, message, all_work
+
+
+def _real_candidates(end: np.ndarray, state: np.ndarray, cond: np.ndarray):
+    """Affine points, and which are candidate real roots (finite, small imaginary part),
+    finite, and singular."""
+    usable = (state == _DONE) | (state == _STALLED)
+    with np.errstate(all="ignore"):
+        finite = usable & _finite(end)
+        x = end[:, 1:] / end[:, :1]
+        singular = cond >= _SINGULAR
+        im_tol = np.where(singular, 1e-4, 1e-7) * (1.0 + np.abs(x).max(axis=1))
+        real = finite & np.isfinite(x).all(axis=1) & (np.abs(x.imag).max(axis=1) <= im_tol)
+    return x, real, finite, singular
+
+
+@dataclass(frozen=True)
+class _Extra:
+    points: np.ndarray      # (M, n) candidate real roots, original units
+    owner: np.ndarray       # (M,) their sets (chunk-local)
+    cond: np.ndarray        # (M,) condition numbers, in the rescaled units
+    work: np.ndarray        # (sets,) evaluations added per set
+    incomplete: np.ndarray  # chunk-local sets whose rescaled solve lost paths
+
+
+def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: np.ndarray,
+                    anchor: np.ndarray) -> _Extra:
+    """Real root candidates of sets solved again with each state in units of a point
+    where one of their paths stalled (``anchor``, one row per stalled path, ``owner``
+    its set), from the generic start.
+
+    Tolerances along a path are relative to the size of the whole point, so roots far
+    smaller than the largest ones of their set crowd together near s = 0: their paths
+    stall and land on one of them. With x = sigma y (sigma = |anchor|) those roots are
+    of order one. A set is solved again when such a point is a regular root in its own
+    units (Newton there settles to rounding level and the condition number is well
+    below _SINGULAR); at a multiple root Newton converges only linearly and the
+    Jacobian stays singular, so those sets cost nothing more. Only regular roots of the
+    rescaled solve are returned; they are the same roots (checked again on the
+    original equations by the caller).
+    """
+    table = comp.table
+    exps, _ = table.arrays()
+    sets = len(target)
+    sigma = np.abs(anchor)
+    sigma = np.where(np.isfinite(sigma) & (sigma > 0), sigma, 1.0)                 # (r, n)
+    with np.errstate(all="ignore"):
+        factor = np.exp(np.einsum("ikj,rj->rik", exps[:, :, 1:].astype(float), np.log(sigma)))
+        scaled = target[owner] * factor
+        scaled = scaled / np.abs(scaled).max(axis=2, keepdims=True)
+        here = np.concatenate([np.ones((len(anchor), 1)), anchor / sigma], axis=1)
+        # Newton in these units: quadratic at a regular root, so the last step is at
+        # rounding level; linear at a multiple root (and its Jacobian stays singular)
+        for _ in range(_OWN_NEWTON):
+            value, jac = _evaluate(table, here, scaled)
+            step = _solve(jac[..., 1:], -value)
+            here[:, 1:] += np.where(np.isfinite(step), step, 0.0)
+        settled = _norm(step) <= _OWN_SETTLED * _norm(here[:, 1:])
+        regular = (np.isfinite(scaled).all(axis=(1, 2)) & settled
+                   & (_condition(table, here, scaled, relative=False) < _SINGULAR / 100))
+    # one anchor per set: the first regular one
+    chosen = np.flatnonzero(regular)
+    chosen = chosen[np.unique(owner[chosen], return_index=True)[1]]
+    owner, sigma, scaled = owner[chosen], sigma[chosen], scaled[chosen]
+    R = len(start.roots)
+    if not len(chosen) or R == 0:
+        return _Extra(np.zeros((0, anchor.shape[1])), np.zeros(0, dtype=int), np.zeros(0),
+                      np.zeros(sets), np.zeros(0, dtype=int))
+    group = np.repeat(np.arange(len(chosen)), R)
+    hom = _line(table, start.chart, scaled.astype(complex), start.cstar[None])
+    end, state, cond, jumped, work = _track_all(hom, np.tile(start.roots, (len(chosen), 1)), group, R)
+    y, real, _, singular = _real_candidates(end, state, cond)
+    # only regular roots: the crowded small roots are what this solve is for, and a
+    # multiple root (found by the first solve) would come back as a spread of estimates
+    cand = np.flatnonzero(real & ~singular)
+    return _Extra(points=y[cand].real * sigma[group[cand]], owner=owner[group[cand]], cond=cond[cand],
+                  work=np.bincount(owner[group], weights=work, minlength=sets),
+                  incomplete=np.unique(owner[group[(state == _FAILED) | jumped]]))
 
 
 def _flag(status, message, mask, text):
