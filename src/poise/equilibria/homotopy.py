@@ -60,6 +60,12 @@ Details:
   real and for merging duplicates. Multiple roots are therefore accurate to roughly
   ``eps**(1/multiplicity)``. A path ending at a singular point off the real line (a
   continuum, or a complex multiple root) flags its set (status 1).
+* **Roots far smaller than the rest.** Tolerances along a path are relative to ``|X|``,
+  so roots much smaller than the largest ones of their set crowd together near
+  ``s = 0`` and their paths stall like paths to a multiple root. A stalled path whose
+  end point is a regular root in its own units (`_rescaled_roots`) has its set solved
+  again with each state in units of that point, and the regular roots of both solves
+  are kept.
 * **Real roots.** Finite endpoints with a small imaginary part are polished by real
   Newton on the cleared system, kept when the residual is small relative to the size of
   the terms, dropped when a cleared denominator vanishes there, and de-duplicated.
