@@ -577,3 +577,52 @@ def test_a_cluster_of_roots_far_smaller_than_another_root_is_resolved(with_hubs)
     assert (result.status == 0).all() and (result.count == 4).all()
     for (av, bv), roots in zip(values, result.roots):
         np.testing.assert_allclose(np.sort(roots[:, 0]), [-bv, av, 2 * av, 3 * av], rtol=1e-9)
+
+
+def test_a_second_solve_does_not_change_how_the_first_solve_roots_merge():
+    # real roots -9.61e-3, 2.97e-3 and a close pair 1.6041e-9, 1.6134e-9, plus a complex
+    # pair near 1.9e-4. Reference: the factors. Copies of the two large roots from the
+    # rescaled second solve once moved the merge floor (the median root size) and the
+    # close pair became one root.
+    x = sympy.Symbol("x")
+    r = sympy.symbols("r0:4")
+    u, v = sympy.symbols("u v")
+    system = polynomial_form([sympy.Mul(*[x - q for q in r]) * ((x - u) ** 2 + v ** 2)], [x], list(r) + [u, v])
+    values = np.array([[-9.6098422352612744e-03, 2.9733267397200544e-03, 1.6040538267967488e-09,
+                        1.6133583627464853e-09, 1.9345878823788214e-04, 5.2474806260195783e-06]])
+    result = solve_batch(system, values)
+    assert result.status[0] == 0 and result.count[0] == 4
+    np.testing.assert_allclose(result.roots[0, :, 0], np.sort(values[0, :4]), rtol=1e-6)
+
+
+def test_a_root_at_zero_does_not_set_the_units_of_the_second_solve():
+    # x: roots a, 2a, 3a (a ~ 1e-5) and -b; y: roots 0 and c. A path that stalls at
+    # y = 0 ends at y ~ 1e-89; rescaling y by that would send y = c to infinity.
+    # Reference: the factors, 4 x 2 real roots.
+    x, y, a, b, c = sympy.symbols("x y a b c")
+    system = polynomial_form([(x - a) * (x - 2 * a) * (x - 3 * a) * (x + b), y * (y - c)], [x, y], [a, b, c])
+    rng = np.random.default_rng(41)
+    values = rng.uniform(0.5, 2.0, (60, 3)) * [1e-5, 1.0, 1.0]
+    result = solve_batch(system, values)
+    assert (result.status == 0).all() and (result.count == 8).all()
+    for (av, bv, cv), roots in zip(values, result.roots):
+        expected = np.array([(xv, yv) for xv in (-bv, av, 2 * av, 3 * av) for yv in (0.0, cv)])
+        close = (np.abs(roots[:, None, :] - expected[None]) <= 1e-9 * np.abs(expected) + 1e-14).all(axis=2)
+        assert close.sum(axis=0).tolist() == [1] * 8
+
+
+def test_the_second_solve_ignores_an_anchor_coordinate_at_rounding_level():
+    # the same system, with the anchor chosen by hand: y = 1e-89 is the root y = 0 up to
+    # rounding, so y keeps the units of its largest root; every (x, y) root with x
+    # small must come back from the second solve. Reference: the factors.
+    x, y, a, b, c = sympy.symbols("x y a b c")
+    system = polynomial_form([(x - a) * (x - 2 * a) * (x - 3 * a) * (x + b), y * (y - c)], [x, y], [a, b, c])
+    values = np.array([[1.3e-5, 1.1, 0.7]])
+    comp, start = homotopy._compile(system), homotopy._start(system, 0)
+    target = comp.coefficients(values)
+    target = target / np.abs(target).max(axis=2, keepdims=True)
+    extra = homotopy._rescaled_roots(comp, start, target, np.array([0]), np.array([[2.6e-5 + 0j, 1e-89 + 0j]]),
+                                     np.array([[1.1, 0.7]]))
+    for xv in (1.3e-5, 2.6e-5, 3.9e-5):
+        for yv in (0.0, 0.7):
+            assert (np.abs(extra.points - [xv, yv]) <= [1e-9 * xv, 1e-9]).all(axis=1).any(), (xv, yv)

@@ -100,6 +100,9 @@ _SINGULAR = 1e8
 # _OWN_NEWTON Newton steps in those units, the last step is below _OWN_SETTLED of it
 # (see `_rescaled_roots`)
 _OWN_NEWTON, _OWN_SETTLED = 3, 1e-12
+# a coordinate below this fraction of the largest in its set is a root at zero, up to
+# rounding: not a unit to rescale by
+_NOISE = 1e-12
 # The corrector's last correction at s = 0 (relative to |X|) at or below this: Newton
 # converged quadratically (the next correction would be ~1e-22), nothing to refine.
 _CONVERGED = 1e-11
@@ -915,11 +918,17 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     # its own units: roots much smaller than the point's size crowd together there;
     # such a set is solved again in units of that root, and the union kept
     stalled = np.flatnonzero((state == _STALLED) & finite)
+    second = np.zeros(len(points), dtype=bool)
     if stalled.size:
-        extra = _rescaled_roots(comp, start, target, group[stalled], x[stalled])
+        with np.errstate(invalid="ignore"):
+            size = np.where(finite[:, None] & np.isfinite(x), np.abs(x), 0.0)
+        reach = np.zeros((sets.size, n))
+        np.maximum.at(reach, group, size)
+        extra = _rescaled_roots(comp, start, target, group[stalled], x[stalled], reach[group[stalled]])
         points = np.concatenate([points, extra.points])
         owner = np.concatenate([owner, extra.owner])
         point_cond = np.concatenate([point_cond, extra.cond])
+        second = np.concatenate([second, np.ones(len(extra.points), dtype=bool)])
         work += extra.work
         for j in extra.incomplete[status[sets[extra.incomplete]] == 0]:
             status[sets[j]] = 1
@@ -928,7 +937,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
 
     pts, ok, sing = _polish_real(comp.table, points, target[owner], point_cond)
     keep = ok & _off_poles(comp, pts, den[sets][owner], sing)
-    roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size)
+    roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size, second[keep])
 
     out = np.full((b, roots.shape[1], n), np.nan)
     out[sets] = roots
@@ -962,10 +971,12 @@ class _Extra:
 
 
 def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: np.ndarray,
-                    anchor: np.ndarray) -> _Extra:
+                    anchor: np.ndarray, reach: np.ndarray) -> _Extra:
     """Real root candidates of sets solved again with each state in units of a point
     where one of their paths stalled (``anchor``, one row per stalled path, ``owner``
-    its set), from the generic start.
+    its set, ``reach`` the largest size of each state among that set's finite end
+    points), from the generic start. A coordinate of the anchor at rounding level
+    (below _NOISE of its reach: a root at zero) keeps the units of its reach.
 
     Tolerances along a path are relative to the size of the whole point, so roots far
     smaller than the largest ones of their set crowd together near s = 0: their paths
@@ -981,6 +992,7 @@ def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: n
     exps, _ = table.arrays()
     sets = len(target)
     sigma = np.abs(anchor)
+    sigma = np.where(np.isfinite(sigma) & (sigma > _NOISE * reach), sigma, reach)
     sigma = np.where(np.isfinite(sigma) & (sigma > 0), sigma, 1.0)                 # (r, n)
     with np.errstate(all="ignore"):
         factor = np.exp(np.einsum("ikj,rj->rik", exps[:, :, 1:].astype(float), np.log(sigma)))

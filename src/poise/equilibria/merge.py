@@ -18,7 +18,8 @@ SAME_SIMPLE, SAME_SINGULAR = 1e-7, 1e-4
 FLOOR = 1e-9
 
 
-def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups: int):
+def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups: int,
+                  extra: np.ndarray | None = None):
     """Roots (groups, width, n) padded with NaN, each set's sorted lexicographically
     with copies merged, and their counts (groups,).
 
@@ -26,12 +27,16 @@ def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups
     either is singular). Each coordinate's median size over the set's roots sets its
     floor, so copies of a root at zero merge whatever units the states have; the
     median, not the largest: one huge root must not merge distinct small ones.
+    ``extra`` marks candidates from a second solve: they are merged like the others but
+    left out of the median, so that their copies of roots already found do not move
+    the floor.
     """
     x = np.ascontiguousarray(x, dtype=float)
+    extra = np.zeros(len(x), dtype=bool) if extra is None else np.asarray(extra, dtype=bool)
     order = np.argsort(group, kind="stable")
     starts = np.searchsorted(group[order], np.arange(groups + 1))
     return _merge(x[order], np.ascontiguousarray(singular[order], dtype=np.bool_),
-                  starts.astype(np.int64))
+                  np.ascontiguousarray(extra[order]), starts.astype(np.int64))
 
 
 @njit(cache=True)
@@ -44,7 +49,7 @@ def _before(a, b):
 
 
 @njit(cache=True)
-def _merge(x, singular, starts):
+def _merge(x, singular, extra, starts):
     G = starts.shape[0] - 1
     n = x.shape[1]
     counts = np.zeros(G, dtype=np.int64)
@@ -68,9 +73,16 @@ def _merge(x, singular, starts):
                 idx[b], idx[b - 1] = idx[b - 1], idx[b]
                 b -= 1
         for j in range(n):
+            counted = 0
             for a in range(m):
-                sizes[a] = abs(x[idx[a], j])
-            floor[j] = max(np.median(sizes[:m]), FLOOR)
+                if not extra[lo + a]:
+                    sizes[counted] = abs(x[lo + a, j])
+                    counted += 1
+            if counted == 0:  # only second-solve candidates: all of them
+                for a in range(m):
+                    sizes[a] = abs(x[lo + a, j])
+                counted = m
+            floor[j] = max(np.median(sizes[:counted]), FLOOR)
         kept = 0
         for a in range(m):
             duplicate = False

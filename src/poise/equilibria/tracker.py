@@ -173,6 +173,8 @@ def _solve2(A, b1, b2, out1, out2, two):
                 b2[piv] = t
         d = A[col, col]
         m2 = d.real * d.real + d.imag * d.imag
+        if not m2 > 0.0:  # a pivot below ~1e-154 squares to zero: singular here
+            return False
         inv = complex(d.real / m2, -d.imag / m2)
         A[col, col] = inv
         for r in range(col + 1, n):
@@ -603,10 +605,14 @@ def start_velocities(live, C, group, origin, lu, perm, mono, ref, ref_value, ok)
         o, g = origin[p], group[p]
         if not ok[o]:
             continue
+        usable = True
         for i in range(q):
             at_one = 0j  # the path's coefficient of the reference term at s = 1
             for m in range(top + 1):
                 at_one += C[g, i, ref[o, i], m]
+            if at_one == 0:
+                usable = False
+                break
             hs = 0j
             for k in range(K):
                 if live[i, k]:
@@ -615,6 +621,8 @@ def start_velocities(live, C, group, origin, lu, perm, mono, ref, ref_value, ok)
                         slope += m * C[g, i, k, m]
                     hs += slope * mono[o, i, k]
             b[i] = -hs * (ref_value[o, i] / at_one)
+        if not usable:
+            continue
         b[q] = 0j
         _lu_solve(lu[o], perm[o], b, out[p])
     return out
@@ -718,6 +726,8 @@ def _lu(A, perm):
             perm[c], perm[piv] = perm[piv], perm[c]
         d = A[c, c]
         m2 = d.real * d.real + d.imag * d.imag
+        if not m2 > 0.0:  # a pivot below ~1e-154 squares to zero: singular here
+            return False
         A[c, c] = complex(d.real / m2, -d.imag / m2)
         for r in range(c + 1, n):
             A[r, c] *= A[c, c]
