@@ -626,3 +626,38 @@ def test_the_second_solve_ignores_an_anchor_coordinate_at_rounding_level():
     for xv in (1.3e-5, 2.6e-5, 3.9e-5):
         for yv in (0.0, 0.7):
             assert (np.abs(extra.points - [xv, yv]) <= [1e-9 * xv, 1e-9]).all(axis=1).any(), (xv, yv)
+
+
+def test_a_complex_pair_close_to_the_axis_among_tiny_roots_is_not_a_real_root():
+    # real roots -9.32e-8, -1.51e-6 and 2.46e-2, and the pair 1.0595e-6 +- 6.66e-8 i.
+    # Reference: the factors (numpy.roots agrees). Tracking takes every point this far
+    # below the largest root for singular; judged in its own units the pair is regular
+    # and clearly complex.
+    x = sympy.Symbol("x")
+    r0, r1, r2, u, v = sympy.symbols("r0 r1 r2 u v")
+    system = polynomial_form([(x - r0) * (x - r1) * (x - r2) * ((x - u) ** 2 + v ** 2)], [x], [r0, r1, r2, u, v])
+    values = np.array([[-9.3246344029847618e-08, -1.5093325871599110e-06, 2.4590875494459513e-02,
+                        1.0595419292877622e-06, 6.6581256004477239e-08]])
+    result = solve_batch(system, values)
+    assert result.status[0] == 0 and result.count[0] == 3
+    np.testing.assert_allclose(result.roots[0, :, 0], np.sort(values[0, :3]), rtol=1e-8)
+
+
+def test_a_root_lost_to_a_path_jump_among_tiny_roots_is_flagged():
+    # x: real roots 2.17e-2, -4.49e-2, 9.91e-5, -1.25e-3 and a complex pair near 2e-9;
+    # for each real x, y**2 - s y - t x = 0 has two real roots when its discriminant is
+    # positive (the reference count: the factors and the discriminant). Paths of the
+    # root at 9.91e-5 jump onto the tiny pair; the set must say that roots may be
+    # missing rather than report fewer with status 0.
+    x, y, s, t = sympy.symbols("x y s t")
+    rs = sympy.symbols("r0:4")
+    u0, v0 = sympy.symbols("u0 v0")
+    f1 = sympy.Mul(*[(x - r) for r in rs]) * ((x - u0) ** 2 + v0 ** 2)
+    system = polynomial_form([f1, y ** 2 - s * y - t * x], [x, y], list(rs) + [u0, v0, s, t])
+    values = np.array([[0.02167831300081434, -0.04490645258920263, 9.9076385113814e-05,
+                        -0.0012478579111090092, 1.9907971721461013e-09, 5.742488215655511e-10,
+                        0.9190086536422605, 0.7116262818980447]])
+    S, T = values[0, -2:]
+    expected = sum(2 for r in values[0, :4] if S * S + 4 * T * r > 0)
+    result = solve_batch(system, values)
+    assert result.count[0] == expected or result.status[0] == 1

@@ -65,7 +65,10 @@ Details:
   ``s = 0`` and their paths stall like paths to a multiple root. A stalled path whose
   end point is a regular root in its own units (`_rescaled_roots`) has its set solved
   again with each state in units of that point, and the regular roots of both solves
-  are kept.
+  are kept. Every end point tracking calls singular is judged again in its own units
+  (`_judge_in_own_units`): a regular one is refined there and must be real to 1e-7 of
+  its own size, and two paths on one such root are a jump (the set is flagged unless
+  its second solve came out clean).
 * **Real roots.** Finite endpoints with a small imaginary part are polished by real
   Newton on the cleared system, kept when the residual is small relative to the size of
   the terms, dropped when a cleared denominator vanishes there, and de-duplicated.
@@ -85,7 +88,7 @@ import numpy as np
 import sympy
 
 from poise.equilibria import tracker
-from poise.equilibria.merge import unique_sorted
+from poise.equilibria.merge import coincident, unique_sorted
 from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
 
@@ -100,6 +103,8 @@ _SINGULAR = 1e8
 # _OWN_NEWTON Newton steps in those units, the last step is below _OWN_SETTLED of it
 # (see `_rescaled_roots`)
 _OWN_NEWTON, _OWN_SETTLED = 3, 1e-12
+# ... and when those steps moved it by at most this fraction of its size
+_OWN_NEAR = 1e-4
 # a coordinate below this fraction of the largest in its set is a root at zero, up to
 # rounding: not a unit to rescale by
 _NOISE = 1e-12
@@ -902,6 +907,19 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
                             "duplicate root; steady states may be missing")
 
     x, real, finite, singular = _real_candidates(end, state, cond)
+    with np.errstate(invalid="ignore"):
+        size = np.where(finite[:, None] & np.isfinite(x), np.abs(x), 0.0)
+    reach = np.zeros((sets.size, n))
+    np.maximum.at(reach, group, size)
+    # tracking measures singularity in units of |X|: an end point far smaller than the
+    # largest of its set looks singular there, and then passes the loose tests meant
+    # for multiple roots (a complex pair close to the real line became a real root).
+    # Judged in its own units, a regular one gets the strict tests.
+    _judge_in_own_units(comp.table, target[group], reach[group], x, real, finite, singular, cond)
+    # two paths on one root that is regular in its own units: a jump the tracker could
+    # not see (it took the root for a multiple one); roots may be missing unless the
+    # set's second solve below (a whole solve of its own) came out clean
+    jumped = np.bincount(group[_same_regular_root(x, finite & ~singular, R)], minlength=sets.size)
     # a path ending at a singular point off the real line: a continuum of steady states
     # (paths land on a generic, complex point of it) or a complex multiple root; the
     # set is flagged so that the caller can solve it another way
@@ -919,25 +937,29 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     # such a set is solved again in units of that root, and the union kept
     stalled = np.flatnonzero((state == _STALLED) & finite)
     second = np.zeros(len(points), dtype=bool)
+    resolved = np.zeros(sets.size, dtype=bool)
     if stalled.size:
-        with np.errstate(invalid="ignore"):
-            size = np.where(finite[:, None] & np.isfinite(x), np.abs(x), 0.0)
-        reach = np.zeros((sets.size, n))
-        np.maximum.at(reach, group, size)
         extra = _rescaled_roots(comp, start, target, group[stalled], x[stalled], reach[group[stalled]])
         points = np.concatenate([points, extra.points])
         owner = np.concatenate([owner, extra.owner])
         point_cond = np.concatenate([point_cond, extra.cond])
         second = np.concatenate([second, np.ones(len(extra.points), dtype=bool)])
         work += extra.work
+        resolved[extra.solved] = True
+        resolved[extra.incomplete] = False
         for j in extra.incomplete[status[sets[extra.incomplete]] == 0]:
             status[sets[j]] = 1
             message[sets[j]] = ("roots of very different sizes: solving again in units of the "
                                 "small ones lost paths; steady states may be missing")
 
-    pts, ok, sing = _polish_real(comp.table, points, target[owner], point_cond)
+    for j in np.flatnonzero((jumped > 0) & ~resolved & (status[sets] == 0)):
+        status[sets[j]] = 1
+        message[sets[j]] = (f"{jumped[j]} of {R} paths ended on a root another path also reached; "
+                            "steady states may be missing")
+
+    pts, ok, sing, spread = _polish_real(comp.table, points, target[owner], point_cond)
     keep = ok & _off_poles(comp, pts, den[sets][owner], sing)
-    roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size, second[keep])
+    roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size, second[keep], spread[keep])
 
     out = np.full((b, roots.shape[1], n), np.nan)
     out[sets] = roots
@@ -968,6 +990,61 @@ class _Extra:
     cond: np.ndarray        # (M,) condition numbers, in the rescaled units
     work: np.ndarray        # (sets,) evaluations added per set
     incomplete: np.ndarray  # chunk-local sets whose rescaled solve lost paths
+    solved: np.ndarray      # chunk-local sets solved again
+
+
+def _same_regular_root(x: np.ndarray, usable: np.ndarray, per_group: int) -> np.ndarray:
+    """Usable end points that another path of their group (``per_group`` consecutive
+    rows) also reached: every coordinate equal to 1e-7 of its own size."""
+    if per_group < 2 or not len(x):
+        return np.zeros(len(x), dtype=bool)
+    return coincident(np.ascontiguousarray(x, dtype=complex), np.ascontiguousarray(usable, dtype=np.bool_),
+                      per_group)
+
+
+def _judge_in_own_units(table, target, reach, x, real, finite, singular, cond):
+    """Re-judge, in place, finite end points that tracking called singular: one that is
+    a regular root in its own units (`_own_units`) is refined there, no longer singular,
+    and real only when its imaginary part is small next to its own size."""
+    recheck = np.flatnonzero(finite & singular & np.isfinite(x).all(axis=1))
+    if not recheck.size:
+        return
+    sigma, _, regular, own, point = _own_units(table, target[recheck], x[recheck], reach[recheck])
+    rows = recheck[regular]
+    singular[rows] = False
+    cond[rows] = own[regular]
+    x[rows] = point[regular]  # Newton in its own units: accurate in every coordinate
+    real[rows] = (np.abs(x[rows].imag) <= 1e-7 * sigma[regular]).all(axis=1)
+
+
+def _own_units(table: _Table, target: np.ndarray, point: np.ndarray, reach: np.ndarray):
+    """Each row's system in units of its point (x = sigma y, sigma = |point| per state;
+    a coordinate below _NOISE of its set's ``reach`` is a zero up to rounding and keeps
+    the units of the reach), and whether the point is near a regular root in those
+    units: Newton there settles to rounding level (quadratic convergence; linear at a
+    multiple root) and 1 / (smallest singular value) of the row-scaled Jacobian is
+    well below _SINGULAR. Returns sigma (r, n), the rescaled coefficients, the flag,
+    that condition number and the point after those Newton steps (original units)."""
+    exps, _ = table.arrays()
+    sigma = np.abs(point)
+    sigma = np.where(np.isfinite(sigma) & (sigma > _NOISE * reach), sigma, reach)
+    sigma = np.where(np.isfinite(sigma) & (sigma > 0), sigma, 1.0)
+    with np.errstate(all="ignore"):
+        factor = np.exp(np.einsum("ikj,rj->rik", exps[:, :, 1:].astype(float), np.log(sigma)))
+        scaled = target * factor
+        scaled = scaled / np.abs(scaled).max(axis=2, keepdims=True)
+        here = np.concatenate([np.ones((len(point), 1)), point / sigma], axis=1)
+        before = here[:, 1:].copy()
+        for _ in range(_OWN_NEWTON):
+            value, jac = _evaluate(table, here, scaled)
+            step = _solve(jac[..., 1:], -value)
+            here[:, 1:] += np.where(np.isfinite(step), step, 0.0)
+        # near the root it converged to (else Newton went off to another root)
+        settled = ((_norm(step) <= _OWN_SETTLED * _norm(here[:, 1:]))
+                   & (_norm(here[:, 1:] - before) <= _OWN_NEAR * _norm(before)))
+        cond = _condition(table, here, scaled, relative=False)
+        regular = np.isfinite(scaled).all(axis=(1, 2)) & settled & (cond < _SINGULAR / 100)
+    return sigma, scaled, regular, cond, here[:, 1:] * sigma
 
 
 def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: np.ndarray,
@@ -989,25 +1066,8 @@ def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: n
     original equations by the caller).
     """
     table = comp.table
-    exps, _ = table.arrays()
     sets = len(target)
-    sigma = np.abs(anchor)
-    sigma = np.where(np.isfinite(sigma) & (sigma > _NOISE * reach), sigma, reach)
-    sigma = np.where(np.isfinite(sigma) & (sigma > 0), sigma, 1.0)                 # (r, n)
-    with np.errstate(all="ignore"):
-        factor = np.exp(np.einsum("ikj,rj->rik", exps[:, :, 1:].astype(float), np.log(sigma)))
-        scaled = target[owner] * factor
-        scaled = scaled / np.abs(scaled).max(axis=2, keepdims=True)
-        here = np.concatenate([np.ones((len(anchor), 1)), anchor / sigma], axis=1)
-        # Newton in these units: quadratic at a regular root, so the last step is at
-        # rounding level; linear at a multiple root (and its Jacobian stays singular)
-        for _ in range(_OWN_NEWTON):
-            value, jac = _evaluate(table, here, scaled)
-            step = _solve(jac[..., 1:], -value)
-            here[:, 1:] += np.where(np.isfinite(step), step, 0.0)
-        settled = _norm(step) <= _OWN_SETTLED * _norm(here[:, 1:])
-        regular = (np.isfinite(scaled).all(axis=(1, 2)) & settled
-                   & (_condition(table, here, scaled, relative=False) < _SINGULAR / 100))
+    sigma, scaled, regular, _, _ = _own_units(table, target[owner], anchor, reach)
     # one anchor per set: the first regular one
     chosen = np.flatnonzero(regular)
     chosen = chosen[np.unique(owner[chosen], return_index=True)[1]]
@@ -1015,17 +1075,20 @@ def _rescaled_roots(comp: _Compiled, start: _Start, target: np.ndarray, owner: n
     R = len(start.roots)
     if not len(chosen) or R == 0:
         return _Extra(np.zeros((0, anchor.shape[1])), np.zeros(0, dtype=int), np.zeros(0),
-                      np.zeros(sets), np.zeros(0, dtype=int))
+                      np.zeros(sets), np.zeros(0, dtype=int), np.zeros(0, dtype=int))
     group = np.repeat(np.arange(len(chosen)), R)
     hom = _line(table, start.chart, scaled.astype(complex), start.cstar[None])
     end, state, cond, jumped, work = _track_all(hom, np.tile(start.roots, (len(chosen), 1)), group, R)
-    y, real, _, singular = _real_candidates(end, state, cond)
+    y, real, finite, singular = _real_candidates(end, state, cond)
+    x = y * sigma[group]
+    _judge_in_own_units(table, target[owner[group]], reach[chosen][group], x, real, finite, singular, cond)
+    jumped |= _same_regular_root(x, finite & ~singular, R)
     # only regular roots: the crowded small roots are what this solve is for, and a
     # multiple root (found by the first solve) would come back as a spread of estimates
     cand = np.flatnonzero(real & ~singular)
-    return _Extra(points=y[cand].real * sigma[group[cand]], owner=owner[group[cand]], cond=cond[cand],
+    return _Extra(points=x[cand].real, owner=owner[group[cand]], cond=cond[cand],
                   work=np.bincount(owner[group], weights=work, minlength=sets),
-                  incomplete=np.unique(owner[group[(state == _FAILED) | jumped]]))
+                  incomplete=np.unique(owner[group[(state == _FAILED) | jumped]]), solved=owner)
 
 
 def _flag(status, message, mask, text):
@@ -1036,7 +1099,8 @@ def _flag(status, message, mask, text):
 
 
 def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
-    """Real Newton on the target; returns points, a convergence flag and singularity.
+    """Real Newton on the target; returns points, a convergence flag, singularity and
+    each point's last Newton step per coordinate (its uncertainty, for merging copies).
 
     ``cond``: the end points' condition numbers from tracking. Multiple roots converge
     only linearly, so singular candidates get a longer budget. The condition number is
@@ -1050,6 +1114,7 @@ def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
     X = np.concatenate([np.ones((len(x), 1)), x], axis=1)
     budget = np.where(singular, 60, 8)
     todo = np.arange(len(x))
+    spread = np.zeros_like(x)
     with np.errstate(all="ignore"):
         for it in range(int(budget.max(initial=0))):
             if todo.size == 0:
@@ -1058,6 +1123,7 @@ def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
             dx = _solve(J[..., 1:], -F)
             finite = np.isfinite(dx).all(axis=1)
             X[todo[finite], 1:] += dx[finite]
+            spread[todo[finite]] = np.abs(dx[finite])
             moving = finite & (_norm(dx) > 1e-15 * (1.0 + _norm(X[todo, 1:])))
             todo = todo[moving & (budget[todo] > it + 1)]
         F, _ = _evaluate(table, X, C, jacobian=False)
@@ -1065,7 +1131,7 @@ def _polish_real(table: _Table, x: np.ndarray, C: np.ndarray, cond: np.ndarray):
         ok = np.isfinite(X).all(axis=1) & (residual <= 1e-9).all(axis=1)
         doubtful = np.flatnonzero(cond >= _SINGULAR / 100)
         singular[doubtful] |= _condition(table, X[doubtful], C[doubtful]) >= _SINGULAR
-    return X[:, 1:], ok, singular
+    return X[:, 1:], ok, singular, spread
 
 
 def _term_bound(table: _Table, X: np.ndarray, C: np.ndarray, jacobian: bool = False):

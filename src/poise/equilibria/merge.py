@@ -16,10 +16,12 @@ from numba import njit
 SAME_SIMPLE, SAME_SINGULAR = 1e-7, 1e-4
 # a coordinate's floor when every root of the set is ~0 (no length scale, e.g. x**3 = 0)
 FLOOR = 1e-9
+# regular roots agree within this many times their spreads (the last Newton step)
+SPREAD = 10.0
 
 
 def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups: int,
-                  extra: np.ndarray | None = None):
+                  extra: np.ndarray | None = None, spread: np.ndarray | None = None):
     """Roots (groups, width, n) padded with NaN, each set's sorted lexicographically
     with copies merged, and their counts (groups,).
 
@@ -30,13 +32,21 @@ def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups
     ``extra`` marks candidates from a second solve: they are merged like the others but
     left out of the median, so that their copies of roots already found do not move
     the floor.
+
+    With ``spread`` (each candidate's uncertainty per coordinate, e.g. the last Newton
+    step that polished it), two regular roots are one when every coordinate agrees to
+    the relative tolerance plus SPREAD times their spreads, and the median floor serves
+    only pairs with a singular root: a floor from the other roots' sizes merges distinct
+    regular roots much smaller than those.
     """
     x = np.ascontiguousarray(x, dtype=float)
     extra = np.zeros(len(x), dtype=bool) if extra is None else np.asarray(extra, dtype=bool)
+    use_spread = spread is not None
+    spread = np.zeros_like(x) if spread is None else np.ascontiguousarray(spread, dtype=float)
     order = np.argsort(group, kind="stable")
     starts = np.searchsorted(group[order], np.arange(groups + 1))
     return _merge(x[order], np.ascontiguousarray(singular[order], dtype=np.bool_),
-                  np.ascontiguousarray(extra[order]), starts.astype(np.int64))
+                  np.ascontiguousarray(extra[order]), spread[order], use_spread, starts.astype(np.int64))
 
 
 @njit(cache=True)
@@ -49,7 +59,7 @@ def _before(a, b):
 
 
 @njit(cache=True)
-def _merge(x, singular, extra, starts):
+def _merge(x, singular, extra, spread, use_spread, starts):
     G = starts.shape[0] - 1
     n = x.shape[1]
     counts = np.zeros(G, dtype=np.int64)
@@ -87,11 +97,16 @@ def _merge(x, singular, extra, starts):
         for a in range(m):
             duplicate = False
             for b in range(a):  # any earlier root, merged or not, as the vectorised rule
-                rel = SAME_SINGULAR if singular[idx[a]] or singular[idx[b]] else SAME_SIMPLE
+                either = singular[idx[a]] or singular[idx[b]]
+                rel = SAME_SINGULAR if either else SAME_SIMPLE
                 same = True
                 for j in range(n):
                     p, r = x[idx[a], j], x[idx[b], j]
-                    if not abs(p - r) <= rel * (max(abs(p), abs(r)) + floor[j]):
+                    if use_spread and not either:
+                        tol = rel * max(abs(p), abs(r)) + SPREAD * (spread[idx[a], j] + spread[idx[b], j])
+                    else:
+                        tol = rel * (max(abs(p), abs(r)) + floor[j])
+                    if not abs(p - r) <= tol:
                         same = False
                         break
                 if same:
@@ -108,3 +123,29 @@ def _merge(x, singular, extra, starts):
     for g in range(G):
         real_width = max(real_width, counts[g])
     return out[:, :real_width].copy(), counts
+
+
+@njit(cache=True)
+def coincident(points, usable, per_group):
+    """Usable rows that another usable row of their group (``per_group`` consecutive
+    rows) matches: every coordinate equal to 1e-7 of its own size (complex points)."""
+    N, n = points.shape
+    out = np.zeros(N, dtype=np.bool_)
+    for start in range(0, N, per_group):
+        stop = min(N, start + per_group)
+        for a in range(start, stop):
+            if not usable[a]:
+                continue
+            for b in range(a + 1, stop):
+                if not usable[b]:
+                    continue
+                same = True
+                for j in range(n):
+                    size = max(abs(points[a, j]), abs(points[b, j]))
+                    if not abs(points[a, j] - points[b, j]) <= 1e-7 * size:
+                        same = False
+                        break
+                if same:
+                    out[a] = True
+                    out[b] = True
+    return out
