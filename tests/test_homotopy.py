@@ -661,3 +661,14 @@ def test_a_root_lost_to_a_path_jump_among_tiny_roots_is_flagged():
     expected = sum(2 for r in values[0, :4] if S * S + 4 * T * r > 0)
     result = solve_batch(system, values)
     assert result.count[0] == expected or result.status[0] == 1
+
+
+def test_copies_of_a_root_with_a_coordinate_at_rounding_level_merge():
+    # two polished copies of the root (1, 0), whose second coordinate is zero up to
+    # rounding and whose last Newton steps were exactly 0, are one root; a distinct
+    # root 1e-11 away in that coordinate is not (review finding, constructed points)
+    from poise.equilibria.merge import unique_sorted
+
+    x = np.array([[1.0, 1e-17], [1.0, -2e-17], [1.0, 1e-11]])
+    roots, counts = unique_sorted(x, np.zeros(3, bool), np.zeros(3, int), 1, None, np.zeros_like(x))
+    assert counts.tolist() == [2]

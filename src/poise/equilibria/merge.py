@@ -16,8 +16,10 @@ from numba import njit
 SAME_SIMPLE, SAME_SINGULAR = 1e-7, 1e-4
 # a coordinate's floor when every root of the set is ~0 (no length scale, e.g. x**3 = 0)
 FLOOR = 1e-9
-# regular roots agree within this many times their spreads (the last Newton step)
-SPREAD = 10.0
+# regular roots agree within this many times their spreads (the last Newton step),
+# plus ROUNDING: polishing stops at steps of 1e-15 (1 + |x|), so a coordinate that is
+# zero up to rounding can differ by that much between copies whose last step was 0
+SPREAD, ROUNDING = 10.0, 1e-15
 
 
 def unique_sorted(x: np.ndarray, singular: np.ndarray, group: np.ndarray, groups: int,
@@ -103,7 +105,8 @@ def _merge(x, singular, extra, spread, use_spread, starts):
                 for j in range(n):
                     p, r = x[idx[a], j], x[idx[b], j]
                     if use_spread and not either:
-                        tol = rel * max(abs(p), abs(r)) + SPREAD * (spread[idx[a], j] + spread[idx[b], j])
+                        tol = (rel * max(abs(p), abs(r)) + SPREAD * (spread[idx[a], j] + spread[idx[b], j])
+                               + ROUNDING)
                     else:
                         tol = rel * (max(abs(p), abs(r)) + floor[j])
                     if not abs(p - r) <= tol:
