@@ -666,7 +666,8 @@ def test_a_root_lost_to_a_path_jump_among_tiny_roots_is_flagged():
 def test_copies_of_a_root_with_a_coordinate_at_rounding_level_merge():
     # two polished copies of the root (1, 0), whose second coordinate is zero up to
     # rounding and whose last Newton steps were exactly 0, are one root; a distinct
-    # root 1e-11 away in that coordinate is not (review finding, constructed points)
+    # root 1e-11 away in that coordinate is not. Reference: the construction of the
+    # points (two copies of one root and one other root: 2 roots); a review finding.
     from poise.equilibria.merge import unique_sorted
 
     x = np.array([[1.0, 1e-17], [1.0, -2e-17], [1.0, 1e-11]])

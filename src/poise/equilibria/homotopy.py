@@ -987,7 +987,7 @@ def _real_candidates(end: np.ndarray, state: np.ndarray, cond: np.ndarray):
 class _Extra:
     points: np.ndarray      # (M, n) candidate real roots, original units
     owner: np.ndarray       # (M,) their sets (chunk-local)
-    cond: np.ndarray        # (M,) condition numbers, in the rescaled units
+    cond: np.ndarray        # (M,) condition numbers (in their own units where re-judged)
     work: np.ndarray        # (sets,) evaluations added per set
     incomplete: np.ndarray  # chunk-local sets whose rescaled solve lost paths
     solved: np.ndarray      # chunk-local sets solved again
