@@ -134,12 +134,12 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
     names = tuple(study.uncertain)
     sobol = study.sensitivity.method == "sobol" and bool(names)
     _check_memory(study, sobol)
+    claim_folder(directory)   # before the work: a folder poise may not write into is refused at once
     design = make_design(names, study.sampling.design, study.sampling.size, study.sampling.seed,
                          sobol_indices=sobol, second_order=study.sensitivity.second_order)
     params = map_to_parameters(design, study.uncertain)
     model = compile_model(study)
 
-    claim_folder(directory)
     with RunLock(directory):
         remove_stale(directory)
         manifest = _prepare_directory(directory, study, design.n_rows, chunk_size, resume, overwrite)

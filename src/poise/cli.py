@@ -72,6 +72,9 @@ def main(argv: list[str] | None = None) -> int:
         print("poise: out of memory; choose a smaller size (--size) or fewer [sensitivity] "
               "resamples, or use a machine with more memory", file=sys.stderr)
         return 1
+    except BrokenPipeError:   # the reader of our output left (e.g. `| head`): nothing to say
+        _silence_stdout()
+        return 1
     except OSError as exc:   # disk full, a folder that became read-only, ...
         hint = ("; what was finished is saved: run the same command again to continue"
                 if args.command == "run" else "")
@@ -79,6 +82,13 @@ def main(argv: list[str] | None = None) -> int:
         return 1
     finally:
         restore()
+
+
+def _silence_stdout() -> None:
+    """Send what is left in stdout's buffer nowhere, so that exiting prints no error."""
+    import os
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, sys.stdout.fileno())
 
 
 def _os_error(exc: OSError) -> str:
@@ -91,7 +101,7 @@ def _os_error(exc: OSError) -> str:
 def _one_line_warnings() -> None:
     """poise's own warnings as one line on stderr; scipy's note on the balance of Sobol'
     points for sizes that are not powers of 2 is expected here and not shown."""
-    from poise.sampling.designs import quiet_sobol_balance
+    from poise.errors import quiet_sobol_balance
     quiet_sobol_balance()
     default = warnings.showwarning
 

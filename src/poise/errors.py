@@ -56,3 +56,15 @@ class ExpressionError(ValueError):
 class PoiseWarning(UserWarning):
     """Something the user should know that does not stop the work (e.g. `jobs`
     capped); the CLI prints it as one line."""
+
+
+# scipy warns when a scrambled Sobol' sequence is cut at a size that is not a power of
+# 2; poise does that knowingly (the user's size; the finders' start points)
+SOBOL_BALANCE_WARNING = r".*balance properties of Sobol' points"
+
+
+def quiet_sobol_balance() -> None:
+    """Hide scipy's balance warning for Sobol' sizes that are not powers of 2 in this
+    process (warning filters are per process: worker processes call this too)."""
+    import warnings
+    warnings.filterwarnings("ignore", message=SOBOL_BALANCE_WARNING, category=UserWarning)

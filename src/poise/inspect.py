@@ -23,7 +23,7 @@ def inspect_point(study: Study, overrides: Mapping[str, float] | None = None) ->
         "jacobian", "eigenvalues", "class", "stability", "margin", "trace",
         "determinant", "discriminant"}], "status": "ok" | reason}
     """
-    from poise.sampling.designs import quiet_sobol_balance
+    from poise.errors import quiet_sobol_balance
     quiet_sobol_balance()
     values = study.nominal_values()
     values.update(overrides or {})

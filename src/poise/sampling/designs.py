@@ -19,20 +19,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import qmc
 
+from poise.errors import SOBOL_BALANCE_WARNING
 from poise.sampling.distributions import Distribution
 
 KINDS = ("random", "lhs", "sobol")
-
-# scipy warns when a scrambled Sobol' sequence is cut at a size that is not a power of
-# 2; poise does that knowingly (the user's size; the finders' start points)
-SOBOL_BALANCE_WARNING = r".*balance properties of Sobol' points"
-
-
-def quiet_sobol_balance() -> None:
-    """Hide scipy's balance warning for Sobol' sizes that are not powers of 2 in this
-    process (the warning filter is process-wide: workers call this too)."""
-    warnings.filterwarnings("ignore", message=SOBOL_BALANCE_WARNING, category=UserWarning)
-
 
 # Points are kept this far from 0 and 1 so that inverse CDFs of unbounded
 # distributions stay finite (about 8.1 standard deviations for a normal).

@@ -46,9 +46,10 @@ _INVISIBLE = frozenset("\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e"
 def is_hostile_character(char: str, allow_line_breaks: bool = False) -> bool:
     """A control character (Unicode category Cc: C0, DEL, C1), a text-direction
     control or a line separator: printed raw, such characters can clear a terminal,
-    fake output or reorder what a reader sees. `allow_line_breaks` admits tab,
-    newline and carriage return (multi-line expressions)."""
-    if allow_line_breaks and char in "\t\n\r":
+    fake output or reorder what a reader sees. `allow_line_breaks` admits tab and
+    newline (an expression may span lines inside brackets); a carriage return, which
+    moves back over what a line already shows, never."""
+    if allow_line_breaks and char in "\t\n":
         return False
     return char in _INVISIBLE or unicodedata.category(char) == "Cc"
 
