@@ -373,3 +373,13 @@ def test_out_of_memory_gives_one_line(studies, tmp_path, monkeypatch):
     status, _, err = run_cli("run", str(studies[1]), "--out", str(tmp_path / "run"), "--quiet")
     assert status == 1 and "Traceback" not in err
     assert re.fullmatch(r"poise: out of memory[^\n]*\n", err)
+
+
+def test_a_broken_summary_under_report_gives_one_line(studies, tmp_path):
+    out = tmp_path / "run"
+    run_study(poise.load_study(studies[1]), out, jobs=1, report=False)
+    for damage in ('{"claims": ', "[1, 2]"):
+        (out / "summary.json").write_text(damage)
+        status, _, err = run_cli("report", str(out))
+        assert status == 2 and "Traceback" not in err and len(err.strip().splitlines()) == 1
+        assert "summary.json" in err and "run the study again" in err

@@ -224,3 +224,10 @@ def test_dir_of_poise_shows_the_public_api():
     assert shown == sorted(public) and resolved
     assert {"load_study", "run_study", "open_run", "inspect_point", "RunResult"} <= set(shown)
     assert not {"api", "cli", "engine", "study"} & set(shown)
+
+
+@pytest.mark.parametrize("value", ["[" * 50_000 + "]" * 50_000, "{a=" * 5000 + "1" + "}" * 5000])
+def test_deeply_nested_toml_gives_one_line(tmp_path, value):
+    # Python's TOML reader recurses once per nesting level (RecursionError before)
+    path = write_study(tmp_path, GOOD.replace("d = 0.2", f"d = 0.2\nq = {value}"))
+    _refused(path, "nested too deeply")

@@ -83,7 +83,15 @@ def open_run(directory: str | Path) -> RunResult:
     summary_path = directory / "summary.json"
     if manifest is None or not manifest.get("complete") or not summary_path.exists():
         raise InputError("not a finished poise run (no complete manifest.json and summary.json)", file=str(directory))
-    return RunResult(directory, json.loads(summary_path.read_text()), manifest)
+    try:
+        summary = json.loads(summary_path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as exc:   # damaged by hand or by a failing disk
+        raise InputError(f"summary.json cannot be read ({exc}); run the study again with the same "
+                         "command to rebuild it", file=str(directory)) from None
+    if not isinstance(summary, dict):
+        raise InputError("summary.json does not hold a poise summary; run the study again with the "
+                         "same command to rebuild it", file=str(directory))
+    return RunResult(directory, summary, manifest)
 
 
 def run_study(study: Study, out: str | Path | None = None, *, size: int | None = None,

@@ -68,6 +68,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("poise: interrupted", file=sys.stderr)
         return 130
+    except RecursionError:   # only input nested far beyond any real model gets here
+        print(f"poise: {args.command}: the input is nested too deeply to read", file=sys.stderr)
+        return 2
     except MemoryError:
         print("poise: out of memory; choose a smaller size (--size) or fewer [sensitivity] "
               "resamples, or use a machine with more memory", file=sys.stderr)

@@ -156,7 +156,7 @@ def remove_recorded(directory: Path, manifest: dict) -> None:
 
     The old manifest is first marked unfinished, so that a run killed half-way
     through the removal is never taken for a finished one."""
-    write_manifest(directory, {**manifest, "complete": False, "chunks": {}})
+    write_manifest(directory, {**manifest, "complete": False})
     for name in recorded_files(manifest):
         path = directory / name
         if _through_link(directory, name):

@@ -81,22 +81,28 @@ def load_study(path: str | Path, *, text: str | None = None) -> Study:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise where.error(None, None, f"not valid TOML: {exc}") from None
-    _no_hostile_text(data, None, where)
+    except RecursionError:   # the TOML reader recurses once per nested array or table
+        raise where.error(None, None, "arrays or tables are nested too deeply to read") from None
+    _no_hostile_text(data, where)
     return _build(path, text, data, where)
 
 
-def _no_hostile_text(data: dict | list, table: str | None, where: _Where) -> None:
+def _no_hostile_text(data: dict, where: _Where) -> None:
     """Refuse control and text-direction characters in every key and string: printed
-    raw, they could rewrite a terminal or reorder what a reader of the report sees."""
-    items = data.items() if isinstance(data, dict) else ((None, v) for v in data)
-    for number, (key, value) in enumerate(items, start=1):
-        if key is not None:
-            _hostile(key, table, key, where, allow_line_breaks=False)
-        if isinstance(value, str):
-            _hostile(value, table, key, where, allow_line_breaks=key not in ONE_LINE_KEYS)
-        elif isinstance(value, (dict, list)):
-            inner = (f"{table}.{key}" if table else key) if key is not None else f"{table}[{number}]"
-            _no_hostile_text(value, inner, where)
+    raw, they could rewrite a terminal or reorder what a reader of the report sees.
+    (Walked with a stack: TOML nests as deep as its reader allows.)"""
+    pending: list[tuple[str | None, dict | list]] = [(None, data)]
+    while pending:
+        table, container = pending.pop()
+        items = container.items() if isinstance(container, dict) else ((None, v) for v in container)
+        for number, (key, value) in enumerate(items, start=1):
+            if key is not None:
+                _hostile(key, table, key, where, allow_line_breaks=False)
+            if isinstance(value, str):
+                _hostile(value, table, key, where, allow_line_breaks=key not in ONE_LINE_KEYS)
+            elif isinstance(value, (dict, list)):
+                inner = f"{table}[{number}]" if key is None else (f"{table}.{key}" if table else key)
+                pending.append((inner, value))
 
 
 def _hostile(text: str, table: str | None, key: str | None, where: _Where, allow_line_breaks: bool) -> None:
