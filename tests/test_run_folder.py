@@ -383,3 +383,18 @@ def test_a_broken_summary_under_report_gives_one_line(studies, tmp_path):
         status, _, err = run_cli("report", str(out))
         assert status == 2 and "Traceback" not in err and len(err.strip().splitlines()) == 1
         assert "summary.json" in err and "run the study again" in err
+
+
+def test_write_atomic_never_writes_through_a_file_planted_at_its_temporary_name(tmp_path, monkeypatch):
+    import poise.engine.storage as storage
+
+    outside = tmp_path / "outside.txt"
+    outside.write_text("do not touch")
+    planted = tmp_path / ".summary.json.0000000000000001.poise-tmp"
+    planted.symlink_to(outside)
+    names = iter(["0000000000000001", "0000000000000002"])   # the first one is taken
+    monkeypatch.setattr(storage.secrets, "token_hex", lambda n: next(names))
+    storage.write_atomic(tmp_path / "summary.json", b"{}")
+    assert outside.read_text() == "do not touch" and planted.is_symlink()
+    assert (tmp_path / "summary.json").read_bytes() == b"{}"
+    assert not (tmp_path / ".summary.json.0000000000000002.poise-tmp").exists()

@@ -16,7 +16,7 @@ import errno
 import os
 from pathlib import Path, PurePosixPath
 
-from poise.engine.storage import (MANIFEST, PARTS, is_poise_manifest, read_manifest,
+from poise.engine.storage import (MANIFEST, PARTS, is_poise_manifest, is_temporary, read_manifest,
                                   remove_stale_temporaries, write_manifest)
 from poise.errors import InputError
 
@@ -65,12 +65,12 @@ def claim_folder(directory: Path) -> None:
 
 
 def is_poise_folder(directory: Path) -> bool:
-    """A folder holding a poise manifest, or nothing but poise's lock (a run that was
-    stopped before it wrote its manifest) — or nothing at all."""
+    """A folder holding a poise manifest, or nothing but poise's lock and temporaries (a
+    run just starting, or stopped before its manifest was written) — or nothing at all."""
     if is_poise_manifest(read_manifest(directory)):
         return True
     try:
-        return all(entry.name == LOCK for entry in os.scandir(directory))
+        return all(entry.name == LOCK or is_temporary(entry.name) for entry in os.scandir(directory))
     except OSError:
         return False
 

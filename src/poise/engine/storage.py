@@ -82,6 +82,11 @@ def write_atomic(path: Path, data: bytes, sync_folder: bool = True) -> None:
         stream.write(data)
 
 
+def is_temporary(name: str) -> bool:
+    """Whether a file name is one of `atomic_file`'s temporaries."""
+    return _TEMPORARY.fullmatch(name) is not None
+
+
 def remove_stale_temporaries(folder: Path) -> list[Path]:
     """Remove the temporaries a killed run left in `folder` (not below it).
 
@@ -100,7 +105,7 @@ def remove_stale_temporaries(folder: Path) -> list[Path]:
     except (FileNotFoundError, NotADirectoryError):
         return removed
     for entry in entries:
-        if _TEMPORARY.fullmatch(entry.name) and not entry.is_dir(follow_symlinks=False):
+        if is_temporary(entry.name) and not entry.is_dir(follow_symlinks=False):
             with contextlib.suppress(FileNotFoundError):
                 os.unlink(entry.path)
                 removed.append(Path(entry.path))
