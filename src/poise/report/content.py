@@ -4,12 +4,11 @@ tables are in `sensitivity`."""
 
 from __future__ import annotations
 
-import math
-
 from .equations import derivative, equation, expression, symbol
 from .load import RunData
+from .methods import completeness_words, finder_words
 from .readings import fmt_value
-from .tables import Column, Interval, Table
+from .tables import Column, Table, as_float, as_interval
 
 __all__ = [
     "CLASS_ORDER", "describe_distribution", "study_table", "parameters_table",
@@ -21,17 +20,6 @@ CLASS_ORDER = ["stable node", "stable focus", "unstable node", "unstable focus",
 
 _DESIGN_WORDS = {"sobol": "scrambled Sobol sequence (quasi-random)",
                  "lhs": "Latin hypercube", "random": "independent random draws"}
-
-
-def _interval(pair) -> Interval:
-    if not pair or len(pair) != 2:
-        return Interval(math.nan, math.nan)
-    lo, hi = pair
-    return Interval(math.nan if lo is None else float(lo), math.nan if hi is None else float(hi))
-
-
-def _float(value) -> float:
-    return math.nan if value is None else float(value)
 
 
 def describe_distribution(spec: dict) -> str:
@@ -95,20 +83,10 @@ def study_table(run: RunData) -> Table:
         words = "none"
     rows.append(["Sensitivity analysis", words])
     if m.get("solver"):
-        solver = m.get("solver")
-        choice = (s.get("solver") or {}).get("choice")
-        if choice:  # "auto": say why
-            solver += (f" (chosen automatically: predicted homotopy speed {choice['predicted_speed']:g}x "
-                       f"Newton's, from {choice['newton_iterations_per_set']:g} Newton iterations vs "
-                       f"{choice['homotopy_evaluations_per_set']:g} homotopy evaluations per probe set)")
-        rows.append(["Steady-state solver", solver])
-    check = (s.get("solver") or {}).get("completeness")
-    if check and check.get("checked"):
-        lo, hi = check["ci95"]
-        rows.append(["Missed steady states (check)",
-                     f"{check['missed']} of {check['checked']} re-solved sets had a steady state the run missed "
-                     f"({100 * check['fraction']:.1f} %, 95 % interval {100 * lo:.1f}-{100 * hi:.1f} %); "
-                     f"reference: {check['reference']}"])
+        rows.append(["Steady-state solver", finder_words(run)])
+    check = completeness_words(run)
+    if check:
+        rows.append(["Missed steady states (check)", check])
     version = (s.get("tool") or m.get("tool") or {}).get("version", "unknown")
     rows.append(["poise version", version])
     if m.get("study_sha256"):
@@ -130,7 +108,7 @@ def parameters_table(run: RunData) -> Table:
         uncertain = "dist" in spec
         nominal = spec.get("nominal") if uncertain else spec.get("value")
         rows.append([symbol(name), "uncertain" if uncertain else "fixed",
-                     describe_distribution(spec), _float(nominal)])
+                     describe_distribution(spec), as_float(nominal)])
     return Table("parameters", "Parameters",
                  [Column("Parameter"), Column("Kind"), Column("Distribution", wide=True),
                   Column("Nominal value", "exact")], rows,
@@ -167,8 +145,8 @@ def claims_table(run: RunData) -> Table | None:
         entry = claims.get(name)
         if entry is None:
             continue
-        rows.append([name, entry.get("holds", holds.get(name, "")), _float(entry.get("probability")),
-                     _interval(entry.get("ci95")), entry.get("successes"), entry.get("n")])
+        rows.append([name, entry.get("holds", holds.get(name, "")), as_float(entry.get("probability")),
+                     as_interval(entry.get("ci95")), entry.get("successes"), entry.get("n")])
     return Table("claims", "How probable each claim is",
                  [Column("Claim"), Column("Holds when", wide=True), Column("Probability", "prob"),
                   Column("95 % interval", "interval"), Column("Sets where it holds", "int"),
@@ -186,7 +164,7 @@ def _count_key(key: str):
 def stable_count_table(run: RunData) -> Table:
     """Distribution of the number of stable steady states per set."""
     dist = run.summary.get("stable_count", {})
-    rows = [[str(k), _float(dist[k].get("probability")), _interval(dist[k].get("ci95"))]
+    rows = [[str(k), as_float(dist[k].get("probability")), as_interval(dist[k].get("ci95"))]
             for k in sorted(dist, key=_count_key)]
     return Table("stable_count", "Number of stable steady states per parameter set",
                  [Column("Stable steady states"), Column("Probability", "prob"),
@@ -204,7 +182,7 @@ def classes_table(run: RunData) -> Table:
     for label in sorted(labels):
         entry = labels[label]
         shares = entry.get("classes", {})
-        rows.append([label, _float(entry.get("present"))] + [_float(shares.get(c, 0.0)) for c in classes])
+        rows.append([label, as_float(entry.get("present"))] + [as_float(shares.get(c, 0.0)) for c in classes])
     return Table("classes", "Kind of each steady state",
                  columns, rows,
                  note="Class shares are fractions of the sets where that steady state exists.")

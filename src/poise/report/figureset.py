@@ -46,16 +46,9 @@ def claim_stems(number: int) -> dict[str, str]:
     return {kind: f"{kind}_claim{number:02d}" for kind in ("sobol", "factor_map", "probability_map")}
 
 
-def _missing(run: RunData, *files: str) -> str | None:
-    gone = [name for name in files if name in run.missing]
-    if not gone:
-        return None
-    return " and ".join(gone) + (" is" if len(gone) == 1 else " are") + " missing"
-
-
 def _map_table(claim: str, number: int, grids) -> Table:
-    columns = [Column("claim"), Column("x"), Column("x low", "number"), Column("x high", "number"),
-               Column("y"), Column("y low", "number"), Column("y high", "number"),
+    columns = [Column("claim"), Column("x"), Column("x_low", "number"), Column("x_high", "number"),
+               Column("y"), Column("y_low", "number"), Column("y_high", "number"),
                Column("sets", "int"), Column("holds", "int"), Column("share", "number")]
     rows = []
     for (a, b), x_edges, y_edges, sets, successes, share in grids:
@@ -93,7 +86,7 @@ def draw_figures(run: RunData, regional: dict, convergence) -> FigureSet:
              "Share of parameter sets with each number of stable steady states, with 95 % "
              "intervals.")
         stem = state_stem(run)
-        if not skip(stem, _missing(run, "equilibria.parquet")):
+        if not skip(stem, run.missing_reason("equilibria.parquet")):
             if run.reduced_dimension == 2:
                 keep(trace_determinant_figure(run.equilibria), stem,
                      "Every sampled steady state on the trace-determinant plane of its Jacobian, "
@@ -106,7 +99,7 @@ def draw_figures(run: RunData, regional: dict, convergence) -> FigureSet:
                      "by kind (a random subset where there are very many; the legend counts "
                      "all). Left of the vertical axis the steady state is stable.")
         _claim_figures(run, regional, out, keep, skip)
-        if not skip("convergence", _missing(run, "outcomes.parquet")):
+        if not skip("convergence", run.missing_reason("outcomes.parquet")):
             keep(convergence_figure(convergence, run.claim_names), "convergence",
                  "Running estimate of each claim's probability and its 95 % Wilson interval as "
                  "independent parameter sets are added in the order they were drawn.")
@@ -125,7 +118,7 @@ def _claim_figures(run: RunData, regional: dict, out: FigureSet, keep, skip) -> 
     independent = run.independent_ok()
     values = run.parameters_of(independent["sample_id"]) if not independent.empty else None
     specs = run.manifest.get("parameters", {})
-    data_reason = _missing(run, "samples.parquet", "outcomes.parquet")
+    data_reason = run.missing_reason("samples.parquet", "outcomes.parquet")
     for number, claim in enumerate(run.claim_names, start=1):
         stems = claim_stems(number)
         out.claim_stems[claim] = stems

@@ -93,6 +93,14 @@ class RunData:
         return [name for name in self.parameter_order
                 if isinstance(params.get(name), dict) and "dist" in params[name]]
 
+    def missing_reason(self, *files: str) -> str | None:
+        """"X is missing" (or "X and Y are missing") for those of `files` not in the run
+        directory; None when all are there."""
+        gone = [name for name in files if name in self.missing]
+        if not gone:
+            return None
+        return " and ".join(gone) + (" is" if len(gone) == 1 else " are") + " missing"
+
     @property
     def reduced_dimension(self) -> int:
         reduced = self.manifest.get("reduced_states", self.manifest.get("states", []))

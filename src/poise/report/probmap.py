@@ -15,7 +15,7 @@ __all__ = ["MIN_CELL", "MAX_PAIRS", "map_pairs", "bin_edges", "bins_per_axis",
 
 MIN_CELL = 5          # fewer sets than this in a bin: no share is shown there
 MAX_PAIRS = 3
-SETS_PER_CELL = 20    # aim for about this many sets per bin on average
+SETS_PER_CELL = 30    # aim for about this many sets per bin on average
 LOG_DISTRIBUTIONS = ("loguniform", "lognormal")
 
 
@@ -55,7 +55,7 @@ def map_pairs(params: list[str], entry: dict | None, regional: dict[str, dict],
 
 def bins_per_axis(n_sets: int) -> int:
     """Bins per parameter so that a bin holds about `SETS_PER_CELL` sets on average."""
-    return int(np.clip(math.floor(math.sqrt(max(n_sets, 1) / SETS_PER_CELL)), 3, 12))
+    return int(np.clip(math.floor(math.sqrt(max(n_sets, 1) / SETS_PER_CELL)), 3, 10))
 
 
 def is_log(spec: dict, values: np.ndarray) -> bool:

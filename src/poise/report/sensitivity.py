@@ -9,7 +9,7 @@ from .equations import symbol
 from .load import RunData
 from .readings import KS_RULES, PRIORITY_RULES, Index, priority_reading, regional_reading
 from .regional import ks_regional
-from .tables import Column, Interval, Table
+from .tables import Column, Interval, Table, as_float, as_interval
 
 __all__ = ["ROUGH_WIDTH", "sobol_claims", "is_rough", "index_of", "sobol_table",
            "ranked_by_total", "priority_table", "priority_summary", "regional_results",
@@ -28,17 +28,6 @@ PRIORITY_NOTE = (
     "and ST is the rule to follow. " + PRIORITY_RULES)
 
 
-def _float(value) -> float:
-    return math.nan if value is None else float(value)
-
-
-def _interval(pair) -> Interval:
-    if not pair or len(pair) != 2:
-        return Interval(math.nan, math.nan)
-    lo, hi = pair
-    return Interval(_float(lo), _float(hi))
-
-
 def sobol_claims(run: RunData) -> list[tuple[str, dict]]:
     """(claim, entry) for the claims that have Sobol indices, in claim order."""
     sens = run.summary.get("sensitivity", {})
@@ -51,7 +40,7 @@ def is_rough(entry: dict, param: str) -> bool:
     if param in (entry.get("flags") or {}):
         return True
     for key in ("S1_ci95", "ST_ci95"):
-        span = _interval((entry.get(key) or {}).get(param))
+        span = as_interval((entry.get(key) or {}).get(param))
         if not math.isnan(span.hi - span.lo) and span.hi - span.lo > ROUGH_WIDTH:
             return True
     return False
@@ -59,8 +48,8 @@ def is_rough(entry: dict, param: str) -> bool:
 
 def index_of(entry: dict, kind: str, param: str) -> Index:
     """The S1 or ST index of one parameter with its interval."""
-    span = _interval((entry.get(f"{kind}_ci95") or {}).get(param))
-    return Index(_float((entry.get(kind) or {}).get(param)), span.lo, span.hi)
+    span = as_interval((entry.get(f"{kind}_ci95") or {}).get(param))
+    return Index(as_float((entry.get(kind) or {}).get(param)), span.lo, span.hi)
 
 
 def _params_of(run: RunData, entry: dict) -> list[str]:

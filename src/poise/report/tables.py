@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from .equations import Math
 from .escape import escape_html, escape_latex, escape_markdown, markdown_code, one_line
 
-__all__ = ["Interval", "Column", "Table", "format_cell", "exact_number",
+__all__ = ["Interval", "Column", "Table", "format_cell", "exact_number", "as_float", "as_interval",
            "to_markdown", "to_html", "to_csv", "to_latex"]
 
 MISSING = "n/a"
@@ -60,6 +60,18 @@ class Table:
     columns: list[Column]
     rows: list[list] = field(default_factory=list)
     note: str = ""
+
+
+def as_float(value) -> float:
+    """A JSON number as float; NaN for null."""
+    return math.nan if value is None else float(value)
+
+
+def as_interval(pair) -> Interval:
+    """A JSON ``[lo, hi]`` pair as an Interval; NaN ends where null or malformed."""
+    if not pair or len(pair) != 2:
+        return Interval(math.nan, math.nan)
+    return Interval(as_float(pair[0]), as_float(pair[1]))
 
 
 def _is_missing(value) -> bool:

@@ -53,11 +53,6 @@ def _convergence_table(frame) -> Table:
     return Table("convergence", "Running estimate of each claim", columns, rows)
 
 
-def _missing(run: RunData, files) -> str | None:
-    gone = [name for name in files if name in run.missing]
-    return (" and ".join(gone) + (" is" if len(gone) == 1 else " are") + " missing") if gone else None
-
-
 def _not_rebuilt(run: RunData, figures: FigureSet) -> tuple[list[str], set[str], dict[str, str]]:
     """Messages, the files to leave in place, and figures of an earlier rendering to show."""
     root, messages, keep, earlier = run.run_dir, [], set(), {}
@@ -74,7 +69,7 @@ def _not_rebuilt(run: RunData, figures: FigureSet) -> tuple[list[str], set[str],
         names.update({p.stem: ("samples.parquet", "outcomes.parquet")
                       for p in (root / "tables").glob("probability_map_claim*.csv")})
     for name, sources in names.items():
-        reason = _missing(run, sources)
+        reason = run.missing_reason(*sources)
         old = [f"tables/{name}.{ext}" for ext in ("csv", "tex") if (root / "tables" / f"{name}.{ext}").is_file()]
         if reason and old:
             keep.update(old)
