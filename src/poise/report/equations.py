@@ -68,8 +68,9 @@ def _characters(markup: str) -> str:
     """Character references in sympy's MathML (``&InvisibleTimes;``, ``&#945;``) as the
     characters themselves, so the page needs no entity table; markup escapes stay."""
     def replace(match: re.Match) -> str:
-        name = match.group(1)
-        return match.group(0) if name in _KEEP_ENTITY else html.unescape(match.group(0))
+        char = html.unescape(match.group(0))
+        # markup characters stay escaped, however sympy wrote them
+        return match.group(0) if match.group(1) in _KEEP_ENTITY or char in "<>&\"'" else char
     return _NAMED_ENTITY.sub(replace, markup)
 
 

@@ -99,8 +99,9 @@ def _design_paragraph(run: RunData) -> list:
     fixed = len(run.parameter_order) - len(uncertain)
     text = [f"The model has {len(states)} state variable{'s' * (len(states) != 1)}"]
     if len(reduced) != len(states):
-        text[0] += (f", {len(reduced)} of them free once the {len(m.get('conserved') or {})} "
-                    "conserved totals are fixed")
+        totals = len(m.get("conserved") or {})
+        text[0] += (f", {len(reduced)} of them free once the {totals} conserved "
+                    f"total{'s are' if totals != 1 else ' is'} fixed")
     text[0] += (f", {len(uncertain)} uncertain and {fixed} fixed parameter{'s' * (fixed != 1)} "
                 "(distributions in the parameters table). Parameter sets were drawn as "
                 f"{_DESIGN.get(m.get('design'), str(m.get('design')))} in the unit cube "
