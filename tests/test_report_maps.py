@@ -117,3 +117,19 @@ def test_maps_for_every_claim_that_varies(run_dir):
     assert md.count("](figures/probability_map_claim") == 2
     assert "number in each bin is its count of sets" in md
     assert NASTY_CLAIM  # both claims vary in the fixture
+
+
+def test_bin_counts_are_written_in_each_bin_or_once_when_all_equal():
+    from matplotlib.figure import Figure
+
+    from poise.report.probmap import _write_counts
+    equal, varied = np.full((3, 3), 32), np.arange(9).reshape(3, 3) + 1
+    share = np.full((3, 3), 0.5)
+    centres = np.array([0.5, 1.5, 2.5])
+    for sets in (equal, varied):
+        ax = Figure().add_subplot()
+        _write_counts(ax, sets, share, centres, centres)
+        if sets is equal:
+            assert ax.get_title(loc="left") == "32 sets in every bin" and not ax.texts
+        else:
+            assert sorted(int(t.get_text()) for t in ax.texts) == list(range(1, 10))

@@ -148,7 +148,8 @@ def _claim_figures(run: RunData, regional: dict, out: FigureSet, keep, skip) -> 
         keep(fig, stems["probability_map"],
              f"Share of sets where '{claim}' holds over bins of two parameters, the others "
              f"averaged out; pairs chosen by the {rule}. The number in each bin is its count "
-             "of sets; grey bins hold fewer than 5. Where the colour changes sharply lies the "
+             "of sets (written once above a panel whose bins all hold the same number); grey "
+             "bins hold fewer than 5. Where the colour changes sharply lies the "
              "boundary of the claim.")
         if grids:
             out.tables.append(_map_table(claim, number, grids))

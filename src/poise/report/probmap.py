@@ -149,12 +149,7 @@ def probability_map_figure(claim: str, values: pd.DataFrame, outcome: pd.Series,
         mesh = ax.pcolormesh(x_edges, y_edges, np.ma.masked_invalid(share.T), cmap=SHARE_COLORMAP,
                              norm=norm, edgecolors="white", linewidth=0.3)
         ax.set_facecolor("#DDDDDD")  # bins with too few sets stay grey
-        cx, cy = _centres(x_edges, x_log), _centres(y_edges, y_log)
-        for i in range(sets.shape[0]):
-            for j in range(sets.shape[1]):
-                dark = not np.isnan(share[i, j]) and share[i, j] < 0.35  # cividis is dark at 0
-                ax.text(cx[i], cy[j], str(sets[i, j]), ha="center", va="center", fontsize=5.5,
-                        color="white" if dark else "black").set_in_layout(False)
+        _write_counts(ax, sets, share, _centres(x_edges, x_log), _centres(y_edges, y_log))
         if x_log:
             log_ticks(ax.xaxis, ax.set_xscale)
         if y_log:
@@ -165,9 +160,24 @@ def probability_map_figure(claim: str, values: pd.DataFrame, outcome: pd.Series,
         ax.set_ylabel(label_text(b, 22, 1))
         ax.tick_params(labelsize=7)
     fig.colorbar(mesh, ax=list(axes), label="share of sets where the claim holds", shrink=0.9)
-    fig.suptitle("Claim: " + label_text(claim, 70, 1) + "   (number in a bin: sets there)",
-                 x=0.02, ha="left", fontsize=9)
+    fig.suptitle("Claim: " + label_text(claim, 70, 1) + "   (number in a bin, or above a panel "
+                 "whose bins all hold the same number: sets there)", x=0.02, ha="left", fontsize=9)
     return fig, grids
+
+
+def _write_counts(ax, sets: np.ndarray, share: np.ndarray, cx: np.ndarray, cy: np.ndarray) -> None:
+    """The number of sets in each bin. A balanced design (a Sobol' sequence puts exactly
+    as many points in every such bin) gives one number for all bins: it is written once
+    above the panel instead of in each of them, which saves drawing time."""
+    if sets.min() == sets.max():
+        ax.set_title(f"{int(sets.flat[0])} sets in every bin", fontsize=7, loc="left",
+                     color="#333333")
+        return
+    for i in range(sets.shape[0]):
+        for j in range(sets.shape[1]):
+            dark = not np.isnan(share[i, j]) and share[i, j] < 0.35  # cividis is dark at 0
+            ax.text(cx[i], cy[j], str(sets[i, j]), ha="center", va="center", fontsize=5.5,
+                    color="white" if dark else "black").set_in_layout(False)
 
 
 def _centres(edges: np.ndarray, log: bool) -> np.ndarray:
