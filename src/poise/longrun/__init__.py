@@ -12,8 +12,8 @@ from poise.longrun.outcomes import (CYCLES, OUTCOME_NAMES, REASONS, SETTLES, UNB
 from poise.longrun.settings import Settings
 from poise.longrun.simulate import simulate
 from poise.longrun.starts import (BOX, INITIAL, KIND_NAMES, UNSTABLE_DIRECTION, Starts, box_starts, combine,
-                                  initial_starts, unstable_starts)
-from poise.longrun.steady import SteadyStates, state_sizes, steady_states
+                                  initial_starts, inside, unstable_starts)
+from poise.longrun.steady import SteadyStates, as_parameter_array, state_sizes, steady_states
 
 
 @dataclass(frozen=True, eq=False)
@@ -27,7 +27,8 @@ class LongRun:
 
 def long_run(kernels, params, steady_owner, steady_free, steady_jacobian=None, *, initial=None,
              box_low=None, box_high=None, box_samples: int = 0, set_ids=None, seed: int = 0,
-             steady_labels=None, settings: Settings = Settings()) -> LongRun:
+             steady_labels=None, domain_low=None, domain_high=None,
+             settings: Settings = Settings()) -> LongRun:
     """Simulate every parameter set from its starts and classify where each trajectory goes.
 
     Parameters
@@ -49,17 +50,22 @@ def long_run(kernels, params, steady_owner, steady_free, steady_jacobian=None, *
         sample ids so that a set's sample does not depend on its chunk.
     seed : int
     steady_labels : (R,) labels for pooled basin fractions.
+    domain_low, domain_high : arrays over all states, optional
+        Displacements from unstable steady states that leave this domain are not made
+        (e.g. a species below zero); default: no limits.
     settings : Settings
 
     Returns
     -------
     LongRun
     """
-    params = np.asarray(params, dtype=float).reshape(-1, kernels.m)
+    params = as_parameter_array(params, kernels.m)
     n_sets = params.shape[0]
     steady = steady_states(kernels, params, steady_owner, steady_free, steady_jacobian)
     fallback = None if initial is None else np.broadcast_to(np.asarray(initial, float), (n_sets, kernels.n))
     parts = [unstable_starts(steady, state_sizes(steady, n_sets, fallback))]
+    if domain_low is not None and domain_high is not None:
+        parts[0] = inside(parts[0], kernels, params, np.asarray(domain_low), np.asarray(domain_high))
     if initial is not None:
         parts.append(initial_starts(initial, n_sets))
     with_box = box_samples > 0 and box_low is not None and box_high is not None
@@ -74,4 +80,4 @@ def long_run(kernels, params, steady_owner, steady_free, steady_jacobian=None, *
 __all__ = ["BOX", "CYCLES", "INITIAL", "KIND_NAMES", "OUTCOME_NAMES", "REASONS", "SETTLES", "UNBOUNDED",
            "UNDETERMINED", "UNSTABLE_DIRECTION", "BasinStability", "LongRun", "Settings", "Share", "Starts",
            "SteadyStates", "Trajectories", "basin_stability", "box_starts", "combine", "initial_starts",
-           "long_run", "simulate", "state_sizes", "steady_states", "unstable_starts"]
+           "inside", "long_run", "simulate", "state_sizes", "steady_states", "unstable_starts"]

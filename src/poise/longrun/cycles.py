@@ -134,7 +134,8 @@ def _match(ctx: Context, tr: Tracks, rows, point, when) -> None:
     period = np.where(lag > 0, when - tr.ret_t[(count - 1 - lag) % ring, rows], np.nan)
     close = (lag > 0) & (distance <= s.match_tolerance)
     with np.errstate(invalid="ignore"):
-        same = close & (lag == tr.lag[rows]) & (np.abs(period - tr.last_period[rows]) <= s.match_tolerance * period)
+        same = (close & (tr.streak[rows] > 0) & (lag == tr.lag[rows])
+                & (np.abs(period - tr.last_period[rows]) <= s.match_tolerance * period))
     restart = close & ~same
     tr.streak[rows] = np.where(same, tr.streak[rows] + 1, np.where(close, 1, 0))
     tr.lag[rows] = lag

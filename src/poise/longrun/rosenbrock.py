@@ -235,9 +235,10 @@ def _last_stages(lu, pivots, ok, F3, X, h, U, weight_floor, rtol, x_new, error):
             new = X[i, k] + M[0] * u0 + M[1] * u1 + M[2] * u2 + M[3] * u3
             estimate = E[0] * u0 + E[1] * u1 + E[2] * u2 + E[3] * u3
             x_new[i, k] = new
+            if estimate == 0.0:       # also where the weight is 0 (a state at exactly 0)
+                continue
             weight = weight_floor[i, k] + rtol * max(abs(X[i, k]), abs(new))
-            if estimate != 0.0 or not (weight > 0.0):
-                ratio = abs(estimate) / weight
-                if not (ratio <= worst):      # also catches NaN
-                    worst = ratio if ratio == ratio else np.inf
+            ratio = abs(estimate) / weight
+            if not (ratio <= worst):      # also catches NaN
+                worst = ratio if ratio == ratio else np.inf
         error[k] = worst

@@ -15,7 +15,7 @@ from poise.longrun.monitor import finish, observe
 from poise.longrun.outcomes import CYCLES, FAILED, NO_TIME_SCALE, UNDETERMINED, Trajectories, number_cycles
 from poise.longrun.settings import Settings
 from poise.longrun.starts import Starts
-from poise.longrun.steady import SteadyStates
+from poise.longrun.steady import SteadyStates, as_parameter_array
 from poise.longrun.timescales import time_scales
 from poise.longrun.tracks import Context, Tracks, make_context, make_tracks
 
@@ -48,7 +48,7 @@ def simulate(kernels, params: np.ndarray, steady: SteadyStates, starts: Starts,
     Trajectories
         One row per start, in the order of `starts`.
     """
-    params = np.asarray(params, dtype=float).reshape(-1, kernels.m)
+    params = as_parameter_array(params, kernels.m)
     start_eigenvalues = _start_eigenvalues(kernels, params, starts)
     times = time_scales(params.shape[0], steady.owner, steady.eigenvalues, starts.owner,
                         start_eigenvalues, settings.horizon_factor)

@@ -135,6 +135,20 @@ def box_starts(low: np.ndarray, high: np.ndarray, count: int, set_ids: np.ndarra
     return _make(x.reshape(n_sets * count, n), owner, BOX, None, index)
 
 
+def inside(starts: Starts, kernels, params: np.ndarray, low: np.ndarray, high: np.ndarray) -> Starts:
+    """The starts whose states, conserved ones included, all lie in [low, high] (arrays over
+    all the model's states, e.g. `CompiledModel.domain_low`/`domain_high`). A displacement
+    from a steady state on the domain's edge (a species at zero) is only meaningful into
+    the domain; the other side is not a start."""
+    if starts.count == 0:
+        return starts
+    full = kernels.full_states(starts.x, params[starts.owner])
+    with np.errstate(invalid="ignore"):
+        keep = np.all((full >= low) & (full <= high), axis=1)
+    return Starts(x=starts.x[keep], owner=starts.owner[keep], kind=starts.kind[keep],
+                  source=starts.source[keep], index=starts.index[keep])
+
+
 def combine(*parts: Starts) -> Starts:
     """Concatenate starts, ordered by set, then kind, then index (a stable order)."""
     x = np.concatenate([p.x for p in parts])

@@ -47,6 +47,16 @@ class SteadyStates:
         return int(self.owner.size)
 
 
+def as_parameter_array(params, m: int) -> np.ndarray:
+    """Parameter sets as an (S, m) float array (a 1-D array is S sets of one parameter)."""
+    params = np.asarray(params, dtype=float)
+    if params.ndim == 1 and m == 1:
+        params = params[:, None]
+    if params.ndim != 2 or params.shape[1] != m:
+        raise ValueError(f"expected parameter sets of shape (S, {m}), got {params.shape}")
+    return params
+
+
 def steady_states(kernels, params: np.ndarray, owner, free, jacobian=None) -> SteadyStates:
     """Bundle found steady states with their Jacobians, eigenvalues and stability.
 
