@@ -76,12 +76,11 @@ def on_returns(ctx: Context, tr: Tracks, rows: np.ndarray, Y, dY, F) -> None:
 
 
 def _place(ctx: Context, tr: Tracks, rows, Y, dY, F):
-    """Where and when each step crossed the section: a first guess from the Hermite cubic
-    of the section's state (linear inside a stiff step), then Newton steps on the
-    fraction s of the step, each re-taking the step from its start with length s * h, so
-    the crossing point is as accurate as an accepted step (and not an interpolant's
-    guess, which is poor where the step is stiff)."""
-    kernels = ctx.kernels
+    """Where and when each step crossed the section: the root of the Hermite cubic of the
+    section's state, and the cubic of every state there. Inside a stiff step the
+    interpolant is poor (see simulate.STIFF_STEP): starting from the linear guess, Newton
+    steps on the fraction s of the step each re-take the step from its start with
+    length s * h, so the crossing point is as accurate as an accepted step."""
     state, level = tr.section[rows], tr.level[rows]
     dt = tr.t[rows] - tr.t0[rows]
     g0, g1 = tr.Y0[state, rows] - level, Y[state, rows] - level
@@ -90,24 +89,34 @@ def _place(ctx: Context, tr: Tracks, rows, Y, dY, F):
     s = np.where(tr.stiff[rows], linear,
                  hermite.crossing(g0, g1, tr.dY0[state, rows], dY[state, rows], dt))
     s = np.where(np.isfinite(s), s, 0.5)
-    X0, F0, J0, P = tr.X0[:, rows], tr.F0[:, rows], tr.J0[:, rows], tr.P[:, rows]
-    normal = tr.normal[:, rows]
-    offset = 0.0 if ctx.obs_offset is None else ctx.obs_offset[tr.owner[rows], state]
-    live, floor = np.ones(rows.size, bool), np.zeros(X0.shape)
+    point = hermite.value(tr.X0[:, rows], tr.X[:, rows], tr.F0[:, rows], F[:, rows], dt, s)
+    stiff = np.flatnonzero(tr.stiff[rows])
+    if stiff.size:       # the interpolant is not trusted inside a stiff step
+        r = rows[stiff]
+        offset = 0.0 if ctx.obs_offset is None else ctx.obs_offset[tr.owner[r], state[stiff]]
+        s[stiff], point[:, stiff] = _restep(ctx, tr.X0[:, r], tr.F0[:, r], tr.J0[:, r], tr.P[:, r], dt[stiff],
+                                            tr.normal[:, r], offset - level[stiff], s[stiff])
+    return point, tr.t0[rows] + s * dt
+
+
+def _restep(ctx: Context, X0, F0, J0, P, dt, normal, shift, fraction):
+    """Newton on the fraction of a step where normal . x + shift = 0, each iterate
+    re-taking the step from X0; returns the fraction and the point there."""
+    live, floor = np.ones(X0.shape[1], bool), np.zeros(X0.shape)
 
     def partial_step(fraction):
-        x, _, _ = rosenbrock.step(kernels, X0, P, F0, J0, np.maximum(fraction, MIN_FRACTION) * dt, live,
-                               floor, ctx.settings.rtol)
+        x, _, _ = rosenbrock.step(ctx.kernels, X0, P, F0, J0, np.maximum(fraction, MIN_FRACTION) * dt, live,
+                                  floor, ctx.settings.rtol)
         return np.where(fraction > MIN_FRACTION, x, X0)
 
     for _ in range(PLACE_ITERATIONS):
-        x = partial_step(s)
-        g = (normal * x).sum(axis=0) + offset - level
-        slope = (normal * kernels.rhs(x.T, P.T).T).sum(axis=0) * dt
+        x = partial_step(fraction)
+        g = (normal * x).sum(axis=0) + shift
+        slope = (normal * ctx.kernels.rhs(x.T, P.T).T).sum(axis=0) * dt
         with np.errstate(invalid="ignore", divide="ignore"):
-            better = s - g / slope
-        s = np.where(np.isfinite(better) & (slope > 0), np.clip(better, 0.0, 1.0), s)
-    return partial_step(s), tr.t0[rows] + s * dt
+            better = fraction - g / slope
+        fraction = np.where(np.isfinite(better) & (slope > 0), np.clip(better, 0.0, 1.0), fraction)
+    return fraction, partial_step(fraction)
 
 
 def _match(ctx: Context, tr: Tracks, rows, point, when) -> None:

@@ -25,6 +25,9 @@ TINY_STEP = 1e-13   # a step below this fraction of max(t, tau) has vanished
 # not used to interpolate inside it (the interpolant's error grows with h |J| times the
 # local error; at 5 it stays about that size).
 STIFF_STEP = 5.0
+# finished trajectories stay in the batch (not stepped) until they are this share of it,
+# or until at most SMALL_BATCH are left
+COMPACT, SMALL_BATCH = 0.25, 64
 
 
 def simulate(kernels, params: np.ndarray, steady: SteadyStates, starts: Starts,
@@ -85,16 +88,21 @@ def _integrate(ctx: Context, tr: Tracks, results: "_Results") -> None:
         broken = ~tr.done & ~(np.isfinite(F).all(axis=0) & np.isfinite(J).all(axis=0))
         broken |= ~tr.done & (tr.h < TINY_STEP * np.maximum(tr.t, tr.tau))
         finish(tr, np.flatnonzero(broken), UNDETERMINED, FAILED)
-        if tr.done.any():
-            results.store(tr, tr.done)
-            keep = np.flatnonzero(~tr.done)
+        new = tr.done & ~tr.stored
+        if new.any():
+            results.store(tr, new)
+            tr.stored |= new
+        finished = int(tr.stored.sum())
+        if finished >= COMPACT * tr.size or tr.size - finished <= SMALL_BATCH:
+            # dropping finished trajectories copies every array: only now and then
+            keep = np.flatnonzero(~tr.stored)
             tr = tr.take(keep)
             F, J, Y, dY = F[:, keep], J[:, keep], Y[:, keep], dY[:, keep]
             if tr.size == 0:
                 break
         tr.X0, tr.F0, tr.J0, tr.Y0, tr.dY0, tr.t0 = tr.X.copy(), F, J, Y, dY, tr.t.copy()
         size = tr.peak[columns]
-        x_new, error, stiffness = rosenbrock.step(kernels, tr.X, tr.P, F, J, tr.h, np.ones(tr.size, bool),
+        x_new, error, stiffness = rosenbrock.step(kernels, tr.X, tr.P, F, J, tr.h, ~tr.done,
                                                   s.atol_fraction * size, s.rtol, size)
         tr.stiff = stiffness > STIFF_STEP
         accept = error <= 1.0

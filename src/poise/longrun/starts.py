@@ -49,7 +49,7 @@ class Starts:
 
 def _make(x, owner, kind, source=None, index=None) -> Starts:
     count = owner.size
-    return Starts(x=np.asarray(x, dtype=float).reshape(count, -1), owner=owner.astype(np.int64),
+    return Starts(x=np.asarray(x, dtype=float), owner=owner.astype(np.int64),
                   kind=np.full(count, kind, dtype=np.int8),
                   source=np.full(count, -1, np.int64) if source is None else source.astype(np.int64),
                   index=np.zeros(count, np.int64) if index is None else index.astype(np.int64))

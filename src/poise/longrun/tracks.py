@@ -152,7 +152,7 @@ def make_tracks(ctx: Context, starts: Starts, start_eigenvalues: np.ndarray) -> 
         returns_after_kick=np.zeros(count, np.int64), kicked_at=nan_k.copy(), first_return_at=nan_k.copy(),
         orbit_points=np.full((lags, n, count), np.nan), orbit_scale=nan_nk.copy(),
         # results
-        done=np.zeros(count, bool), outcome=np.full(count, UNDETERMINED, np.int8),
+        done=np.zeros(count, bool), stored=np.zeros(count, bool), outcome=np.full(count, UNDETERMINED, np.int8),
         reason=np.zeros(count, np.int8), steady=np.full(count, -1, np.int64),
         period=nan_k.copy(), low=nan_allk.copy(), high=nan_allk.copy(), multiplier=nan_k.copy(),
     )
