@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from poise.longrun import hermite, rosenbrock
+from poise.longrun import hermite, rosenbrock, scan
 from poise.longrun.outcomes import CYCLES, NEUTRAL_ORBITS, REPELLING_ORBIT, UNDETERMINED
 from poise.longrun.tracks import Context, Tracks, range_scale
 
@@ -124,34 +124,13 @@ def _match(ctx: Context, tr: Tracks, rows, point, when) -> None:
     if rows.size == 0:
         return
     s = ctx.settings
-    ring = s.max_lag + 1
-    tr.crossings[rows] += 1
     tr.window_crossings[rows] += 1
-    count = tr.crossings[rows]
     scale = range_scale(ctx, tr, rows)
-    lag = np.zeros(rows.size, np.int64)
-    distance = np.full(rows.size, np.inf)
-    for q in range(s.max_lag, 0, -1):        # smallest lag within tolerance wins
-        slot = (count - 1 - q) % ring
-        earlier = tr.ret_x[slot, :, rows].T                                  # (n, k)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            d = np.where(point == earlier, 0.0, np.abs(point - earlier) / scale).max(axis=0)
-        d = np.where((count - 1 - q >= 0) & np.isfinite(d), d, np.inf)
-        hit = d <= s.lag_tolerance
-        lag = np.where(hit, q, lag)
-        distance = np.where(hit, d, distance)
-    period = np.where(lag > 0, when - tr.ret_t[(count - 1 - lag) % ring, rows], np.nan)
-    close = (lag > 0) & (distance <= s.match_tolerance)
-    with np.errstate(invalid="ignore"):
-        same = (close & (tr.streak[rows] > 0) & (lag == tr.lag[rows])
-                & (np.abs(period - tr.last_period[rows]) <= s.match_tolerance * period))
-    restart = close & ~same
-    tr.streak[rows] = np.where(same, tr.streak[rows] + 1, np.where(close, 1, 0))
-    tr.lag[rows] = lag
-    tr.last_period[rows] = period
-    slot = (count - 1) % ring
-    tr.ret_t[slot, rows] = when
-    tr.ret_x[slot, :, rows] = point.T
+    restart = np.zeros(rows.size, bool)
+    scan.match_returns(rows, np.ascontiguousarray(point), when, np.ascontiguousarray(scale), tr.crossings,
+                       tr.ret_t, tr.ret_x, tr.streak, tr.lag, tr.last_period, s.max_lag, s.lag_tolerance,
+                       s.match_tolerance, restart)
+    count, period, close = tr.crossings[rows], tr.last_period[rows], tr.streak[rows] > 0
     # the orbit's extremes are collected from the return that starts a streak on
     if restart.any():
         Yc, _ = ctx.all_states(tr.owner[rows[restart]], point[:, restart])

@@ -10,6 +10,7 @@ the step size. Everything is elementwise.
 from __future__ import annotations
 
 import numpy as np
+from numba import njit
 
 NEWTON_STEPS = 8
 
@@ -29,24 +30,33 @@ def value(y0, y1, d0, d1, dt, s):
 
 
 def crossing(g0, g1, d0, d1, dt):
-    """Fraction s in [0, 1] where the interpolant of g crosses zero, given g0 < 0 <= g1.
+    """Fraction s in [0, 1] where the interpolant of g crosses zero, given g0 < 0 <= g1
+    (1-D arrays). Newton steps from the secant estimate, kept inside the bracket that
+    the sign changes maintain (a bisection step when Newton would leave it)."""
+    out = np.empty(np.shape(g0))
+    _crossing(np.asarray(g0, float), np.asarray(g1, float), np.asarray(d0, float), np.asarray(d1, float),
+              np.asarray(dt, float), out)
+    return out
 
-    Newton steps from the secant estimate, kept inside the bracket that the sign
-    changes maintain (a bisection step when Newton would leave it).
-    """
-    c1, c2, c3 = coefficients(g0, g1, d0, d1, dt)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s = np.clip(-g0 / (g1 - g0), 0.0, 1.0)
-    s = np.where(np.isfinite(s), s, 0.5)
-    low, high = np.zeros_like(s), np.ones_like(s)
-    for _ in range(NEWTON_STEPS):
-        g = g0 + s * (c1 + s * (c2 + s * c3))
-        slope = c1 + s * (2.0 * c2 + 3.0 * s * c3)
-        below = g < 0
-        low = np.where(below, s, low)
-        high = np.where(below, high, s)
-        with np.errstate(divide="ignore", invalid="ignore"):
+
+@njit(cache=True, error_model="numpy")
+def _crossing(g0, g1, d0, d1, dt, out):
+    for k in range(g0.size):
+        c1 = dt[k] * d0[k]
+        c2 = 3.0 * (g1[k] - g0[k]) - dt[k] * (2.0 * d0[k] + d1[k])
+        c3 = 2.0 * (g0[k] - g1[k]) + dt[k] * (d0[k] + d1[k])
+        s = -g0[k] / (g1[k] - g0[k])
+        s = min(max(s, 0.0), 1.0) if s == s else 0.5
+        low, high = 0.0, 1.0
+        for _ in range(NEWTON_STEPS):
+            g = g0[k] + s * (c1 + s * (c2 + s * c3))
+            if g == 0.0:
+                break
+            if g < 0.0:
+                low = s
+            else:
+                high = s
+            slope = c1 + s * (2.0 * c2 + 3.0 * s * c3)
             newton = s - g / slope
-        inside = np.isfinite(newton) & (newton > low) & (newton < high)
-        s = np.where(inside, newton, 0.5 * (low + high))
-    return s
+            s = newton if (newton > low and newton < high) else 0.5 * (low + high)
+        out[k] = s

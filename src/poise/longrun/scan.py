@@ -130,3 +130,50 @@ def _linear_there(X, F, k, x_star, jacobian, peak, free_columns, linearity, diff
             linear_size = max(linear_size, abs(linear) / scale[i])
             residual_size = max(residual_size, abs(residual) / scale[i])
     return residual_size <= linearity * linear_size
+
+
+@njit(cache=True, error_model="numpy")
+def match_returns(rows, point, when, scale, crossings, ret_t, ret_x, streak, lag, last_period,
+                  max_lag, lag_tolerance, match_tolerance, restart):
+    """Record a return to the section for each of `rows` and compare it with the earlier
+    ones (see `poise.longrun.cycles`): the smallest lag whose return lies within
+    `lag_tolerance` (in units of `scale`, per state) gives the period; a return within
+    `match_tolerance` of it, at the lag and period of the previous one, extends the
+    streak, else starts one (`restart`) or ends it. Updates the per-trajectory arrays in
+    place; returns are kept in a ring of max_lag + 1."""
+    ring = max_lag + 1
+    n = point.shape[0]
+    for i in range(rows.size):
+        k = rows[i]
+        crossings[k] += 1
+        count = crossings[k]
+        best_lag, best_distance = 0, np.inf
+        for q in range(max_lag, 0, -1):
+            if count - 1 - q < 0:
+                continue
+            slot = (count - 1 - q) % ring
+            distance = 0.0
+            for j in range(n):
+                earlier = ret_x[slot, j, k]
+                if earlier != earlier:
+                    distance = np.inf
+                    break
+                gap = abs(point[j, i] - earlier)
+                if gap > 0.0:
+                    distance = max(distance, gap / scale[j, i])
+            if distance <= lag_tolerance:
+                best_lag, best_distance = q, distance
+        period = np.nan
+        if best_lag > 0:
+            period = when[i] - ret_t[(count - 1 - best_lag) % ring, k]
+        close = best_lag > 0 and best_distance <= match_tolerance
+        same = (close and streak[k] > 0 and best_lag == lag[k]
+                and abs(period - last_period[k]) <= match_tolerance * period)
+        restart[i] = close and not same
+        streak[k] = streak[k] + 1 if same else (1 if close else 0)
+        lag[k] = best_lag
+        last_period[k] = period
+        slot = (count - 1) % ring
+        ret_t[slot, k] = when[i]
+        for j in range(n):
+            ret_x[slot, j, k] = point[j, i]

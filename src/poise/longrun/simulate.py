@@ -93,7 +93,7 @@ def _integrate(ctx: Context, tr: Tracks, results: "_Results") -> None:
             results.store(tr, new)
             tr.stored |= new
         finished = int(tr.stored.sum())
-        if finished >= COMPACT * tr.size or tr.size - finished <= SMALL_BATCH:
+        if finished and (finished >= COMPACT * tr.size or tr.size - finished <= SMALL_BATCH):
             # dropping finished trajectories copies every array: only now and then
             keep = np.flatnonzero(~tr.stored)
             tr = tr.take(keep)
