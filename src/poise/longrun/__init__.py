@@ -1,4 +1,84 @@
-"""Long-run behaviour by batched simulation (placeholder docstring, rewritten below)."""
+"""Long-run behaviour by batched simulation: where trajectories go, which sets oscillate.
+
+Linear stability says what happens next to a steady state; this package follows
+trajectories to see where they end: at a stable steady state, on a periodic orbit (with
+its period and each state's range), off to infinity, or nowhere decidable within the
+budget, with the reason. It works on whole batches of parameter sets at once.
+
+API (plain data in and out)
+---------------------------
+``long_run(kernels, params, steady_owner, steady_free, steady_jacobian=None, *, initial=None,
+box_low=None, box_high=None, box_samples=0, set_ids=None, seed=0, steady_labels=None,
+domain_low=None, domain_high=None, settings=Settings()) -> LongRun``
+    One call: starts at ``initial`` (one per set), next to every unstable steady state
+    along each unstable direction, and (with ``box_samples``) a box sample per set;
+    returns ``LongRun(steady, trajectories, basins)``.
+
+The parts, for callers that want their own starts:
+
+* ``steady_states(kernels, params, owner, free, jacobian=None) -> SteadyStates``
+  (eigenvalues, ``stable``, ``unstable``); ``state_sizes``.
+* ``initial_starts``, ``unstable_starts``, ``box_starts``, ``inside``, ``combine`` ->
+  ``Starts(x, owner, kind, source, index)``.
+* ``simulate(kernels, params, steady, starts, settings) -> Trajectories``: one row per
+  start: ``outcome`` (``OUTCOME_NAMES``: settles / cycles / unbounded / undetermined),
+  ``reason`` (``REASONS``), ``steady`` (row reached), ``period``, ``low``/``high``
+  (every state of the model, conserved ones included, on the orbit), ``multiplier``
+  (return-map multiplier of the orbit), ``cycle`` (orbit number within the set),
+  ``final``, ``time``, ``steps``.
+* ``basin_stability(trajectories, n_sets, steady_owner, steady_labels) -> BasinStability``:
+  shares of the box starts per steady state, per orbit, per set and pooled, each a
+  ``Share(successes, draws, fraction, low, high)`` with Wilson intervals.
+
+Everything is in the model's free states (after eliminating conserved totals), as
+`poise.model.Kernels` uses them; ``kernels.full_states`` maps back.
+
+How it works
+------------
+`rosenbrock`: a fourth-order L-stable Rosenbrock step with an embedded error estimate
+and the model's analytic Jacobian, compiled, each trajectory with its own step size;
+`simulate`: one Python loop over time steps (not over sets); `scan`, `monitor`,
+`cycles`: per-step tests, section returns, the attraction test; `timescales`: the
+horizon rule (100 times the slowest time scale of the set's steady states, and a budget
+of steps); `settings`: every tolerance, all relative (to each state's size or range
+along its trajectory, and to the set's time scale), so outcomes do not depend on units.
+
+Limits
+------
+Simulation covers the starts tried, not all of state space. An orbit is called periodic
+only once its returns repeat to 1e-4 of each state's range and a kick of 1 % decays; a
+very slowly attracting orbit, a very slowly unwinding spiral, a long-period or chaotic
+motion ends "undetermined" (budget) rather than guessed. A state that is zero at every
+steady state and at the start has no size of its own: it is displaced by 1e-3 in model
+units and never judged to grow without bound (a blow-up then ends as a failure).
+
+Wiring into the pipeline (not done here)
+----------------------------------------
+In ``poise.engine.chunk.analyse_sets``, after the steady states are classified and
+continua merged, for the sets that are ``ok`` (optionally a stated random subsample,
+chosen by sample_id so that it does not depend on chunks)::
+
+    run = long_run(model.kernels, params[ok_sets], owner_within_ok, found.free, jacobians,
+                   initial=x0_full[list(model.kernels.free_columns)],   # SBML initial or [model.initial]
+                   box_low=..., box_high=..., box_samples=N,            # optional [long_run] box, free states
+                   set_ids=sample_ids[ok_sets], seed=study.sampling.seed,
+                   steady_labels=labels(study.states, found.full),
+                   domain_low=model.domain_low, domain_high=model.domain_high)
+
+Tables: ``equilibria.parquet`` gains ``basin, basin_low, basin_high`` (share of the set's
+box starts that settle there; NaN without a box) and ``reached`` (the initial-state
+trajectory settles there). ``outcomes.parquet`` gains ``long_run`` (outcome of the
+initial-state trajectory), ``long_run_reason``, ``cycles`` (some trajectory of the set
+ends on an attracting orbit), ``period``, ``min_<state>``, ``max_<state>``,
+``amplitude_<state>`` (of that orbit; the initial state's orbit first), ``n_trajectories``
+and ``n_undetermined``. A new ``trajectories.parquet`` holds one row per trajectory:
+``sample_id, kind, source`` (equilibrium index within the set), ``outcome, reason,
+steady`` (equilibrium index), ``period, multiplier, cycle, time, steps`` and
+``min_<state>, max_<state>``. Claim words: ``cycles``, ``period``, ``amplitude(x)``,
+``reaches(label)``, ``basin(label)``; ``summary.json`` gets P(cycles) with its Wilson
+interval and the pooled basin shares with theirs. Undetermined trajectories are counted
+and reported with their reasons, never dropped.
+"""
 
 from __future__ import annotations
 

@@ -23,7 +23,8 @@ REASONS = (
     "neither came to rest nor repeated within the time horizon or the step budget",
     "closed orbits that neither attract nor repel nearby trajectories: a family of cycles "
     "(as around a centre), not an isolated periodic orbit",
-    "the orbit repeats but repels nearby trajectories",
+    "the orbit repeats (to the match tolerance) but nearby trajectories move away from it: a repelling "
+    "orbit, or a spiral unwinding too slowly to tell from one",
     "the orbit repeats, but the budget ended before it was shown to attract",
     "came to rest where no listed steady state is (the steady-state search may have missed one)",
     "came to rest at an unstable steady state (the start lies on it or on its stable manifold)",
