@@ -17,8 +17,7 @@ from scipy.integrate import solve_ivp
 
 import poise
 from poise.analysis.intervals import wilson_interval
-from poise.longrun import (CYCLES, SETTLES, UNBOUNDED, UNDETERMINED, Settings, combine, initial_starts,
-                           long_run, simulate, state_sizes, steady_states, unstable_starts)
+from poise.longrun import (CYCLES, SETTLES, UNBOUNDED, UNDETERMINED, Settings, long_run)
 from poise.longrun.outcomes import NEUTRAL_ORBITS, REST_UNLISTED
 from poise.model import compile_model
 

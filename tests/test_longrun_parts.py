@@ -145,7 +145,7 @@ def test_unstable_starts_lie_along_eigenvectors(tmp_path):
             J = steady.jacobian[s]
             lam = (trace[s] + np.array([1, -1]) * np.sqrt(trace[s] ** 2 - 4 * det[s])) / 2
             # J d = lam d for one of the closed-form eigenvalues
-            assert min(np.abs(J @ d - l * d).max() for l in lam) < 1e-12
+            assert min(np.abs(J @ d - value * d).max() for value in lam) < 1e-12
 
 
 def test_box_starts_are_uniform_and_independent_of_the_batch():

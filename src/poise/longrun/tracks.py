@@ -136,7 +136,9 @@ def make_tracks(ctx: Context, starts: Starts, start_eigenvalues: np.ndarray) -> 
         # integration
         X=X, t=np.zeros(count), h=h, steps=np.zeros(count, np.int64),
         rejected=np.zeros(count, bool), moved=np.zeros(count, bool), refresh=np.zeros(count, bool),
-        X0=X.copy(), F0=np.zeros((n, count)), J0=np.zeros((n * n, count)), stiff=np.zeros(count, bool), Y0=Y.copy(), dY0=np.zeros((n_all, count)), t0=np.zeros(count),
+        # the start of the latest step (where it was taken from), for interpolation
+        X0=X.copy(), F0=np.zeros((n, count)), J0=np.zeros((n * n, count)), stiff=np.zeros(count, bool),
+        Y0=Y.copy(), dY0=np.zeros((n_all, count)), t0=np.zeros(count),
         tau=tau, horizon=ctx.times.horizon[owner].copy(), next_check=ctx.times.first[owner].copy(),
         # sizes and extremes
         peak=np.abs(Y), reference=reference,
