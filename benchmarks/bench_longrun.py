@@ -25,7 +25,7 @@ before numpy is imported). Timings depend on the machine; this is not a test.
 
 Usage::
 
-    PYTHONPATH=src python benchmarks/bench_longrun.py [--sets 400] [--loop-sets 40] [--seed 0]
+    PYTHONPATH=src python benchmarks/bench_longrun.py [--sets 1000] [--loop-sets 30] [--seed 0]
         [--models brusselator,circadian,cellcycle]
 """
 
@@ -187,8 +187,8 @@ def run_loop(model, params, owner, free, x0, run, pick):
 
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sets", type=int, default=400)
-    parser.add_argument("--loop-sets", type=int, default=40)
+    parser.add_argument("--sets", type=int, default=1000)
+    parser.add_argument("--loop-sets", type=int, default=30)
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--models", default="brusselator,circadian,cellcycle")
     args = parser.parse_args()
