@@ -371,6 +371,30 @@ def test_a_steady_state_missing_from_the_list_is_flagged(models):
     assert np.allclose(np.sort(tr.final[:, 0]), [-1.0, 1.5, 1.5], atol=1e-4)
 
 
+def test_a_weakly_damped_spiral_is_never_reported_as_an_orbit(tmp_path):
+    kernels = compile_text(tmp_path, """
+        title = "weakly damped focus"
+        [model]
+        states = ["x", "y"]
+        [model.domain]
+        x = [-inf, inf]
+        y = [-inf, inf]
+        [model.ode]
+        x = "-e*x - y"
+        y = "x - e*y"
+        [parameters]
+        e = { dist = "loguniform", low = 1e-6, high = 1e-1 }
+    """)
+    e = np.array([1e-1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6])
+    run = long_run(kernels, e[:, None], np.arange(6), np.zeros((6, 2)), initial=np.array([1.0, 0.0]))
+    tr = run.trajectories
+    # closed form: r = r0 exp(-e t), every trajectory spirals into the origin; there is no
+    # periodic orbit however weak the damping
+    assert not np.any(tr.outcome == CYCLES)
+    assert tr.outcome[0] == SETTLES
+    assert np.all((tr.outcome == SETTLES) | (tr.outcome == UNDETERMINED))
+
+
 def test_outcomes_do_not_depend_on_the_batch_and_repeat_exactly(models):
     kernels = models["brusselator"]
     params = brusselator_sets(24, seed=8)

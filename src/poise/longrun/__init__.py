@@ -48,7 +48,8 @@ Limits
 Simulation covers the starts tried, not all of state space. An orbit is called periodic
 only once its returns repeat to 1e-4 of each state's range and a kick of 1 % decays; a
 very slowly attracting orbit, a very slowly unwinding spiral, a long-period or chaotic
-motion ends "undetermined" (budget) rather than guessed. A state that is zero at every
+motion ends "undetermined" (budget) rather than guessed, and so does an orbit around a
+stable focus that damps too weakly for the returns to rule out a slow spiral into it. A state that is zero at every
 steady state and at the start has no size of its own: it is displaced by 1e-3 in model
 units and never judged to grow without bound (a blow-up then ends as a failure).
 

@@ -13,6 +13,10 @@ within `match_tolerance` of each state's range, with the same lag and periods ag
 to the same tolerance, the orbit has converged: its period, each state's minimum and
 maximum since the streak began, and its section points are recorded.
 
+Spirals. A trajectory winding slowly into a stable focus also seems to repeat; where the
+orbit encloses a stable focus whose contraction per turn is too weak for the returns
+to rule it out, the outcome is "undetermined" with that reason.
+
 Attraction. Repeating is not enough: around a centre every orbit repeats. So the
 trajectory is restarted at its last return, kicked within the section by `perturbation`
 of each state's range, and its next returns are compared with the recorded points. The
@@ -26,12 +30,13 @@ from __future__ import annotations
 import numpy as np
 
 from poise.longrun import hermite, rosenbrock, scan
-from poise.longrun.outcomes import CYCLES, NEUTRAL_ORBITS, REPELLING_ORBIT, UNDETERMINED
+from poise.longrun.outcomes import CYCLES, NEUTRAL_ORBITS, REPELLING_ORBIT, SLOW_SPIRAL, UNDETERMINED
 from poise.longrun.tracks import Context, Tracks, range_scale
 
 SPURIOUS_RETURN = 0.01   # a "return" this soon after the kick (fraction of the period) is the restart itself
 PLACE_ITERATIONS = 2     # Newton steps placing a crossing (each one re-takes part of a step)
 MIN_FRACTION = 1e-12     # a crossing closer than this to the step's start is at its start
+SPIRAL_MARGIN = 10.0     # see _maybe_spiral
 
 
 def choose_sections(ctx: Context, tr: Tracks, rows: np.ndarray, relative: np.ndarray) -> None:
@@ -156,6 +161,9 @@ def _kick(ctx: Context, tr: Tracks, rows, point, when, count, scale) -> None:
         slot = (count - 1 - i) % ring
         tr.orbit_points[i, :, rows] = np.where((i < lag)[:, None], tr.ret_x[slot, :, rows], np.nan)
     tr.orbit_scale[:, rows] = scale
+    spiral = _maybe_spiral(ctx, tr, rows, point, scale)
+    _decide(tr, rows[spiral], UNDETERMINED, SLOW_SPIRAL)
+    rows, point, when, scale = rows[~spiral], point[:, ~spiral], when[~spiral], scale[:, ~spiral]
     kick, size = _kick_vector(point, scale, tr.normal[:, rows], s.perturbation)
     tr.X[:, rows] = point + kick
     tr.t[rows] = when
@@ -167,6 +175,29 @@ def _kick(ctx: Context, tr: Tracks, rows, point, when, count, scale) -> None:
     tr.moved[rows] = False
     extra = (s.check_returns + 2) * tr.period[rows]
     tr.horizon[rows] = np.maximum(tr.horizon[rows], when + extra)
+
+
+def _maybe_spiral(ctx: Context, tr: Tracks, rows, point, scale) -> np.ndarray:
+    """(k,) True where the orbit could be a slowly damped spiral into a stable focus.
+
+    A trajectory winding into a stable focus returns to the section a factor rho (the
+    focus's contraction per turn) closer each time, so successive returns differ by
+    (1 - rho) times its distance to the focus. Where the orbit's extremes enclose a
+    stable focus and that expected drift is within SPIRAL_MARGIN times the match
+    tolerance, the returns cannot tell a periodic orbit from such a spiral (linear
+    estimate; no other test here can: the kick would decay too).
+    """
+    owner = tr.owner[rows]
+    columns = ctx.free_columns
+    low, high = tr.run_low[columns][:, rows].T, tr.run_high[columns][:, rows].T          # (k, n)
+    margin = 0.1 * (high - low)
+    focus = ctx.steady_x[owner]                                                          # (k, R, n)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        inside = np.all((focus >= (low - margin)[:, None, :]) & (focus <= (high + margin)[:, None, :]), axis=2)
+        distance = np.nan_to_num(np.abs(point.T[:, None, :] - focus) / scale.T[:, None, :], nan=np.inf).max(axis=2)
+        drift = (1.0 - ctx.steady_spiral[owner]) * distance
+    suspect = inside & (ctx.steady_spiral[owner] > 0) & (drift <= SPIRAL_MARGIN * ctx.settings.match_tolerance)
+    return suspect.any(axis=1)
 
 
 def _kick_vector(point, scale, normal, fraction):

@@ -17,7 +17,7 @@ SETTLES, CYCLES, UNBOUNDED, UNDETERMINED = range(4)
 OUTCOME_NAMES = ("settles", "cycles", "unbounded", "undetermined")
 
 (NO_REASON, BUDGET, NEUTRAL_ORBITS, REPELLING_ORBIT, CHECK_UNFINISHED, REST_UNLISTED,
- REST_UNSTABLE, REST_NONHYPERBOLIC, FAILED, NO_TIME_SCALE) = range(10)
+ REST_UNSTABLE, REST_NONHYPERBOLIC, FAILED, NO_TIME_SCALE, SLOW_SPIRAL) = range(11)
 REASONS = (
     "",
     "neither came to rest nor repeated within the time horizon or the step budget",
@@ -31,6 +31,8 @@ REASONS = (
     "came to rest at a steady state whose linear stability is undetermined",
     "the model could not be integrated further (a value was not finite or the step size vanished)",
     "no time scale: every eigenvalue at the steady states and at the start is zero",
+    "the orbit repeats, but it winds around a stable focus that damps so weakly that it may be "
+    "a slow spiral into it",
 )
 
 SAME_CYCLE = 1e-2   # two trajectories follow the same orbit if period and extremes agree this well
@@ -93,11 +95,22 @@ class Trajectories:
 
 
 def number_cycles(owner: np.ndarray, period: np.ndarray, low: np.ndarray, high: np.ndarray) -> np.ndarray:
-    """Number the distinct orbits within each set: 0, 1, ... (-1 where period is NaN).
+    """Number the distinct orbits within each set.
 
     Trajectories are sorted by set and period; a new orbit begins where the set changes,
     or the period or any state's extreme differs from the previous trajectory's by more
     than SAME_CYCLE (relative to the period and to the state's range). Vectorised.
+
+    Parameters
+    ----------
+    owner : (T,) set of each trajectory.
+    period : (T,) period of its orbit, NaN for none.
+    low, high : (T, N) each state's extremes on the orbit.
+
+    Returns
+    -------
+    (T,) int array
+        0, 1, ... within each set; -1 where the period is NaN.
     """
     count = owner.size
     number = np.full(count, -1, dtype=np.int64)

@@ -56,7 +56,18 @@ def _make(x, owner, kind, source=None, index=None) -> Starts:
 
 
 def initial_starts(x0: np.ndarray, n_sets: int) -> Starts:
-    """One start per set from `x0`: (n,) for every set alike, or (S, n) per set."""
+    """One start per set from a given initial state.
+
+    Parameters
+    ----------
+    x0 : (n,) array (the same for every set) or (S, n) array (one per set), free states.
+    n_sets : number of sets S.
+
+    Returns
+    -------
+    Starts
+        S starts of kind INITIAL.
+    """
     x0 = np.asarray(x0, dtype=float)
     x = np.broadcast_to(x0, (n_sets, x0.shape[-1])).copy()
     return _make(x, np.arange(n_sets), INITIAL)
@@ -136,10 +147,23 @@ def box_starts(low: np.ndarray, high: np.ndarray, count: int, set_ids: np.ndarra
 
 
 def inside(starts: Starts, kernels, params: np.ndarray, low: np.ndarray, high: np.ndarray) -> Starts:
-    """The starts whose states, conserved ones included, all lie in [low, high] (arrays over
-    all the model's states, e.g. `CompiledModel.domain_low`/`domain_high`). A displacement
-    from a steady state on the domain's edge (a species at zero) is only meaningful into
-    the domain; the other side is not a start."""
+    """Keep the starts whose states, conserved ones included, all lie in the domain.
+
+    A displacement from a steady state on the domain's edge (a species at zero) is only
+    meaningful into the domain; the other side is not a start.
+
+    Parameters
+    ----------
+    starts : Starts
+    kernels : poise.model.Kernels (its `full_states` gives the conserved states).
+    params : (S, m) parameter sets.
+    low, high : arrays over all the model's states, e.g. `CompiledModel.domain_low`/`domain_high`.
+
+    Returns
+    -------
+    Starts
+        The subset inside, in the same order.
+    """
     if starts.count == 0:
         return starts
     full = kernels.full_states(starts.x, params[starts.owner])
@@ -150,7 +174,18 @@ def inside(starts: Starts, kernels, params: np.ndarray, low: np.ndarray, high: n
 
 
 def combine(*parts: Starts) -> Starts:
-    """Concatenate starts, ordered by set, then kind, then index (a stable order)."""
+    """Concatenate starts.
+
+    Parameters
+    ----------
+    *parts : Starts
+
+    Returns
+    -------
+    Starts
+        All of them, ordered by set, kind, source and index (an order that does not
+        depend on the order of `parts`).
+    """
     x = np.concatenate([p.x for p in parts])
     owner = np.concatenate([p.owner for p in parts])
     kind = np.concatenate([p.kind for p in parts])

@@ -68,6 +68,10 @@ def steady_states(kernels, params: np.ndarray, owner, free, jacobian=None) -> St
     free : (R, n) free states of each.
     jacobian : (R, n, n) array, optional
         Computed with `kernels.jacobian` when not given.
+
+    Returns
+    -------
+    SteadyStates
     """
     owner = np.asarray(owner, dtype=np.int64).reshape(-1)
     free = np.asarray(free, dtype=float).reshape(owner.size, kernels.n)
@@ -91,9 +95,18 @@ def steady_states(kernels, params: np.ndarray, owner, free, jacobian=None) -> St
 def state_sizes(steady: SteadyStates, n_sets: int, fallback: np.ndarray | None = None) -> np.ndarray:
     """Each state's own size in each set: its largest |value| over the set's steady states.
 
-    Where that is zero (the state vanishes at every steady state, or the set has none),
-    `fallback` (S, n) is used, e.g. the initial state; where that is zero too, NaN: the
-    state has no size of its own.
+    Parameters
+    ----------
+    steady : SteadyStates
+    n_sets : number of sets S.
+    fallback : (S, n) array, optional
+        Used where the steady states give no size (the state vanishes at every steady
+        state, or the set has none), e.g. the initial state.
+
+    Returns
+    -------
+    (S, n) array
+        Positive sizes; NaN where the state has no size of its own.
     """
     n = steady.free.shape[1]
     sizes = np.zeros((n_sets, n))

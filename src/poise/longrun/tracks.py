@@ -40,6 +40,7 @@ class Context:
     steady_row: np.ndarray          # (S, R) row in SteadyStates, -1 for padding
     steady_stable: np.ndarray       # (S, R) bool
     steady_unstable: np.ndarray     # (S, R) bool
+    steady_spiral: np.ndarray       # (S, R) a stable focus's contraction per turn, else 0
     times: TimeScales
 
     @property
@@ -78,13 +79,24 @@ def make_context(kernels, settings: Settings, params: np.ndarray, steady: Steady
     steady_jacobian[owner_sorted, slot] = steady.jacobian[order]
     steady_row[owner_sorted, slot] = order
     stable[owner_sorted, slot] = steady.stable[order]
+    spiral = np.zeros((n_sets, width))
+    spiral[owner_sorted, slot] = _contraction_per_turn(steady.eigenvalues[order], steady.stable[order])
     unstable[owner_sorted, slot] = steady.unstable[order]
     matrix, offset = _affine_map(kernels, params)
     return Context(kernels=kernels, settings=settings, params=params,
                    free_columns=np.asarray(kernels.free_columns, dtype=np.int64),
                    obs_matrix=matrix, obs_offset=offset, steady_x=steady_x,
                    steady_jacobian=steady_jacobian, steady_row=steady_row, steady_stable=stable,
-                   steady_unstable=unstable, times=times)
+                   steady_unstable=unstable, steady_spiral=spiral, times=times)
+
+
+def _contraction_per_turn(eigenvalues: np.ndarray, stable: np.ndarray) -> np.ndarray:
+    """(R,) for a stable focus, the factor by which its slowest complex pair shrinks a
+    spiral in one turn, exp(2 pi Re / |Im|); 0 for nodes and unstable states."""
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        turn = np.where(np.abs(eigenvalues.imag) > 0,
+                        np.exp(2 * np.pi * eigenvalues.real / np.abs(eigenvalues.imag)), 0.0)
+    return np.where(stable, np.nan_to_num(turn, nan=0.0).max(axis=1, initial=0.0), 0.0)
 
 
 def _affine_map(kernels, params):
