@@ -248,7 +248,6 @@ def test_a_symlink_planted_at_a_table_temporary_is_not_written_through(studies, 
     assert not (out / "samples.parquet").is_symlink()
 
 
-@pytest.mark.xfail(strict=True, reason="report writer routed through storage.write_atomic by the report engineer")
 def test_a_symlink_planted_at_a_report_temporary_is_not_written_through(studies, tmp_path):
     out = tmp_path / "run"
     run_study(poise.load_study(studies[1]), out, jobs=1, report=False)

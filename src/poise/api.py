@@ -213,10 +213,11 @@ def _check_memory(study: Study, sobol: bool) -> None:
             f"{have / 2**30:,.0f} GB: choose a smaller size{hint}", file=str(study.path))
 
 
-def _write_report(directory: Path, manifest: dict) -> list[Path]:
-    """Write the report and record its files in the manifest as the run's own."""
+def _write_report(directory: Path, manifest: dict, notes: list[str] | None = None) -> list[Path]:
+    """Write the report and record its files in the manifest as the run's own;
+    `notes` collects what could not be rebuilt (missing data files)."""
     from poise.report import write_report
-    written = write_report(directory)
+    written = write_report(directory, notes=notes)
     own = set(manifest.get("files") or ())
     for path in written:
         try:
@@ -315,7 +316,8 @@ def _prepare_directory(directory: Path, study: Study, n_sets: int, chunk_size: i
 def _versions() -> dict:
     import importlib.metadata as metadata
     versions = {"python": platform.python_version()}
-    for package in ("numpy", "scipy", "sympy", "SALib", "pandas", "pyarrow", "joblib", "matplotlib"):
+    for package in ("numpy", "scipy", "sympy", "SALib", "pandas", "pyarrow", "joblib", "matplotlib",
+                    "numba", "python-libsbml"):
         try:
             versions[package] = metadata.version(package)
         except metadata.PackageNotFoundError:
@@ -372,6 +374,9 @@ def report_from_cli(args) -> int:
     result = open_run(args.dir)
     with RunLock(result.directory):
         remove_stale(result.directory)
-        written = _write_report(result.directory, read_manifest(result.directory) or result.manifest)
+        notes: list[str] = []
+        written = _write_report(result.directory, read_manifest(result.directory) or result.manifest, notes)
+    for note in notes:
+        print(f"poise: warning: {note}", file=sys.stderr)
     print(f"rebuilt {len(written)} files in {result.directory}")
     return 0
