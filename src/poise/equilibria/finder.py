@@ -2,7 +2,8 @@
 
 1. Multistart: Newton from a grid of starts (up to 3 free states) or a scrambled Sobol
    point set (more states) over a box scaled per set from the model: a conserved total
-   or finite domain limit where one bounds a state, else the parameters' magnitude.
+   or finite domain limit where one bounds a state, else the balance of the model's own
+   terms (`poise.model.scales`).
    Grid levels include exact zeros, where ecological and chemical models keep many of
    their steady states (an iterate started on an invariant face stays on it).
 2. Deflation rounds, for every set with a root in the domain: Newton again with those
@@ -37,11 +38,12 @@ from scipy.stats import qmc
 
 from poise.equilibria.linalg import solve_rows
 from poise.equilibria.newton import newton
+from poise.equilibria.zeros import inside_domain, snap_zeros
 from poise.model.kernels import Kernels
 
 RESIDUAL_TOLERANCE = 1e-8    # |f_i| relative to the sum of |terms| of f_i
 CORRECTION_TOLERANCE = 1e-9  # or: the next Newton step, relative to |x| + scale
-ZERO_TOLERANCE = 1e-9        # |x_i| relative to the state's scale counts as zero
+ZERO_TOLERANCE = 1e-9        # deflation: roots this close (in scales) to the domain count as inside
 SAME_ROOT = 1e-6             # relative distance under which two roots are one
 DEFLATION_PATIENCE = 6       # deflated runs: iterations without a 10 % smaller step
 MOVE = 0.03                  # deflation starts: roots moved this far (step-size units)
@@ -124,8 +126,7 @@ def start_points(n: int, lower_open: np.ndarray, starts: int = 0, coarse: bool =
     return magnitude * sign
 
 
-def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray,
-                       domain_low: np.ndarray, domain_high: np.ndarray,
+def find_steady_states(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray,
                        starts: int = 0, deflation_rounds: int = 2,
                        max_iterations: int = 60) -> FoundStates:
     """Find every steady state in the domain for each parameter set.
@@ -134,8 +135,6 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
     ----------
     kernels : compiled model.
     params : (B, m) varying parameter values.
-    magnitude : (B,) a typical size of the parameters, used where the model gives no
-        bound on a state.
     domain_low, domain_high : (N,) limits for every (full) state.
     starts : number of Sobol starts; 0 chooses a grid from the number of free states.
     deflation_rounds : at most this many deflation rounds per set.
@@ -144,27 +143,26 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarr
     Returns
     -------
     FoundStates
-        Sorted by set, then by state values; states within ZERO_TOLERANCE (relative
-        to the set's scale) of zero are exactly zero. A set where f and J cannot be
+        Sorted by set, then by state values; a state is exactly zero where the model
+        says so (`poise.equilibria.zeros`). A set where f and J cannot be
         evaluated at any start has ok False and a reason.
     """
-    return _find(kernels, params, magnitude, domain_low, domain_high, starts, deflation_rounds,
+    return _find(kernels, params, domain_low, domain_high, starts, deflation_rounds,
                  max_iterations)[0]
 
 
-def newton_work(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray,
-                domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
+def newton_work(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
     """Mean Newton iterations per parameter set that `find_steady_states` spends (over
     all starts and deflation rounds): a machine-independent measure of its work."""
-    _, solve = _find(kernels, params, magnitude, domain_low, domain_high, **settings)
+    _, solve = _find(kernels, params, domain_low, domain_high, **settings)
     return solve.iterations / max(1, params.shape[0])
 
 
-def _find(kernels, params, magnitude, domain_low, domain_high, starts=0, deflation_rounds=2,
+def _find(kernels, params, domain_low, domain_high, starts=0, deflation_rounds=2,
           max_iterations=60):
     """`find_steady_states` and the solver it used (which counts iterations)."""
     batch, n = params.shape[0], kernels.n
-    scale = state_scales(kernels, params, magnitude)                            # (B, n)
+    scale = state_scales(kernels, params)                                       # (B, n)
     free_columns = np.asarray(kernels.free_columns, dtype=int)
     free_low, free_high = domain_low[free_columns], domain_high[free_columns]
     if n == 0:      # every state fixed by conserved totals: one candidate per set
@@ -205,14 +203,11 @@ def _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, 
 
 
 def in_domain(kernels, params, scale, domain_low, domain_high, owner, x):
-    """Full states of roots `x` (free states) of sets `owner`, with values within
-    ZERO_TOLERANCE of zero (relative to the set's scale) made exactly zero, keeping
-    only those inside the domain. Returns (owner, full)."""
-    full = kernels.full_states(x, params[owner])
-    full_scale = _full_scale(full, owner, scale)
-    full = np.where(np.abs(full) <= ZERO_TOLERANCE * full_scale, 0.0, full)
-    inside = ((full >= domain_low - ZERO_TOLERANCE * full_scale)
-              & (full <= domain_high + ZERO_TOLERANCE * full_scale)).all(axis=1)
+    """Full states of roots `x` (free states) of sets `owner`, with zero coordinates made
+    exactly zero (`poise.equilibria.zeros`), keeping only those inside the domain.
+    Returns (owner, full)."""
+    _, full = snap_zeros(kernels, params, owner, x, scale)
+    inside = inside_domain(full, domain_low, domain_high)
     return owner[inside], full[inside]
 
 
@@ -389,18 +384,15 @@ def _slow_directions(kernels, params, known, used, sets, unit, every_axis=False)
     return out, slowness
 
 
-def state_scales(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
-    """A typical size per set and free state: a model bound where known, else the
-    parameters' magnitude."""
-    bound = np.abs(kernels.scales(params))
-    fallback = np.maximum(1.0, magnitude)[:, None]
-    return np.where(np.isfinite(bound) & (bound > 0), bound, fallback)
-
-
-def _full_scale(full, owner, scale):
-    """Scale for every state: the largest scale of its set's free states (an eliminated
-    state is a combination of them and a total)."""
-    return np.broadcast_to(scale[owner].max(axis=1, initial=1.0)[:, None], full.shape)
+def state_scales(kernels: Kernels, params: np.ndarray) -> np.ndarray:
+    """A typical size per set and free state (`poise.model.scales`): a conserved total
+    or finite domain limit where one bounds the state, else the balance of the model's
+    own terms. Never taken from the parameters' values as such, so it follows the
+    model's units."""
+    if kernels.sizes is None:
+        return np.ones((params.shape[0], kernels.n))
+    size = np.abs(kernels.sizes(params))
+    return np.where(np.isfinite(size) & (size > 0), size, 1.0)
 
 
 def _verified(kernels: Kernels, roots: _Roots, params: np.ndarray, scale: np.ndarray):

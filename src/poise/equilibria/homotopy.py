@@ -88,6 +88,7 @@ import numpy as np
 import sympy
 
 from poise.equilibria import tracker
+from poise.equilibria.balance import balance, rescale
 from poise.equilibria.merge import coincident, unique_sorted
 from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
@@ -685,6 +686,9 @@ class _Hubs:
     params: np.ndarray | None = None
     # `tracker.start_factors` at every root of every hub (set by `_hub_start`)
     factors: tuple | None = None
+    # (H, n) log of each hub's state units (`poise.equilibria.balance`): a hub and every
+    # target reached from it are solved in these units
+    log_units: np.ndarray | None = None
 
 
 @lru_cache(maxsize=8)
@@ -705,12 +709,14 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     coef = comp.coefficients(params)
     with np.errstate(all="ignore"):
         usable = np.isfinite(coef).all(axis=(1, 2)) & ~(coef == 0).all(axis=2).any(axis=1)
-        anchor = coef[usable] / np.abs(coef[usable]).max(axis=2, keepdims=True)
+    exps = comp.table.exponents
+    units = balance(exps, comp.table.live, coef[usable])
+    anchor = rescale(exps, coef[usable], units)
     hubs = None
     if len(start.roots) and len(anchor) and comp.family is not None:
-        hubs = _parameter_hubs(comp, start, params[usable], anchor, seed)
+        hubs = _parameter_hubs(comp, start, params[usable], anchor, units, seed)
     if hubs is None:
-        hubs = _coefficient_hubs(comp, start, anchor, seed)
+        hubs = _coefficient_hubs(comp, start, anchor, units, seed)
     if not hubs.roots.size:
         return hubs
     exps, live = comp.table.arrays()
@@ -720,13 +726,15 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     return dataclasses.replace(hubs, factors=factors)
 
 
-def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: int) -> _Hubs:
-    """Hubs at each hub's normalised coefficients plus relative complex noise."""
+def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, units: np.ndarray,
+                      seed: int) -> _Hubs:
+    """Hubs at each hub's normalised coefficients (in its own units) plus relative
+    complex noise."""
     q, K = comp.table.live.shape
     R, nv = start.roots.shape
     if R == 0 or not len(anchor):
         return _Hubs(np.zeros((0, q, K), complex), np.zeros((0, q * K)), np.zeros((0, R, nv), complex),
-                     np.ones(nv), np.zeros(0, dtype=int))
+                     np.ones(nv), np.zeros(0, dtype=int), log_units=np.zeros((0, nv - 1)))
     rng = np.random.default_rng([seed, 1989])
     noise = np.where(comp.table.live, _complex_normal(rng, (len(anchor), q, K)), 0)
     # relative noise keeps each coefficient's own scale (small coefficients set where
@@ -736,31 +744,33 @@ def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: 
     smallest = np.where(size > 0, size, np.inf).min(axis=2, keepdims=True)
     hub_coef = anchor + _HUB_NOISE * noise * np.where(size > 0, size, smallest)
     roots, whole = _roots_at(comp, start, hub_coef)
-    hub_coef, anchor = hub_coef[whole], anchor[whole]
+    hub_coef, anchor, units = hub_coef[whole], anchor[whole], units[whole]
     weight = _typical_size(roots.reshape(-1, nv))
     # how many paths diverge on the way from each hub to its own (real) system: targets
     # near the hub should lose no more than that many to infinity
     own = _line(comp.table, start.chart, anchor.astype(complex), hub_coef, weight)
     return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), q * K), roots=roots,
-                 weight=weight, infinite=_diverging(own, roots))
+                 weight=weight, infinite=_diverging(own, roots), log_units=units)
 
 
 def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: np.ndarray,
-                    seed: int) -> _Hubs | None:
-    """Hubs at each hub's parameters plus relative complex noise, or None when that does
-    not save paths (or the family's generic roots are not all simple)."""
+                    units: np.ndarray, seed: int) -> _Hubs | None:
+    """Hubs at each hub's parameters plus relative complex noise (coefficients in the
+    hub's own units), or None when that does not save paths (or the family's generic
+    roots are not all simple)."""
     nv = start.roots.shape[1]
     rng = np.random.default_rng([seed, 1993])
     scale = np.where(params != 0, params, 1.0)
     hub_params = params + _HUB_NOISE * scale * _complex_normal(rng, params.shape)
+    exps = comp.table.exponents
     with np.errstate(all="ignore"):
         hub_coef = comp.family.evaluate(hub_params)
         size = np.abs(hub_coef).max(axis=2, keepdims=True)
-        hub_coef = hub_coef / size
+        hub_coef = rescale(exps, hub_coef, units)
     ok = np.isfinite(hub_coef).all(axis=(1, 2)) & (size[..., 0] > 0).all(axis=1)
     if not ok.any():
         return None
-    hub_params, hub_coef, anchor = hub_params[ok], hub_coef[ok], anchor[ok]
+    hub_params, hub_coef, anchor, units = hub_params[ok], hub_coef[ok], anchor[ok], units[ok]
     roots, clean = _roots_at(comp, start, hub_coef, keep_partial=True)
     counts = np.array([len(r) for r in roots])
     R = int(counts[clean].max(initial=0))
@@ -770,15 +780,13 @@ def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: 
     if R == 0 or R >= len(start.roots) or kept.sum() < len(counts) / 2:
         return None
     roots = np.stack([roots[i] for i in np.flatnonzero(kept)])
-    hub_params, hub_coef, anchor = hub_params[kept], hub_coef[kept], anchor[kept]
+    hub_params, hub_coef, anchor, units = hub_params[kept], hub_coef[kept], anchor[kept], units[kept]
     weight = _typical_size(roots.reshape(-1, nv))
     real = params[ok][kept]
-    C = along_line(comp.family, real, hub_params)
-    with np.errstate(all="ignore"):
-        C = C / np.abs(C[..., 0]).max(axis=2, keepdims=True)[..., None]
+    C = rescale(exps, along_line(comp.family, real, hub_params), units)
     own = _Homotopy(comp.table, start.chart, C, weight)
     return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), anchor[0].size), roots=roots,
-                 weight=weight, infinite=_diverging(own, roots), params=hub_params)
+                 weight=weight, infinite=_diverging(own, roots), params=hub_params, log_units=units)
 
 
 def _roots_at(comp: _Compiled, start: _Start, coef: np.ndarray, keep_partial: bool = False):
@@ -873,27 +881,33 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     if R == 0 or sets.size == 0:
         return np.full((b, 0, n), np.nan), np.zeros(b, dtype=int), status, message, np.zeros(b, np.int64)
 
-    # scale each equation to unit largest coefficient: same roots, better-balanced path
-    target = coef[sets]
-    scale = 1.0 / np.abs(target).max(axis=2, keepdims=True)
-    target = target * scale
-    C0 = target.astype(complex)
+    # each target is solved in units where its coefficients balance (`balance`): those
+    # of the hub it starts from, whose roots are known there; each equation scaled to
+    # unit largest coefficient (same roots, better-balanced path)
+    exps = comp.table.exponents
+    own_units = balance(exps, comp.table.live, coef[sets])
     if hubs is not None and len(hubs.roots):
-        near = _nearest(_log_scale(target.reshape(sets.size, -1)), _log_scale(hubs.anchor))
+        near = _nearest(_log_scale(rescale(exps, coef[sets], own_units).reshape(sets.size, -1)),
+                        _log_scale(hubs.anchor))
+        units = hubs.log_units[near]
+        target = rescale(exps, coef[sets], units)
         R = hubs.roots.shape[1]
         if hubs.params is not None:  # along a line in parameter space
-            C = along_line(comp.family, values[sets], hubs.params[near]) * scale[..., None]
+            C = rescale(exps, along_line(comp.family, values[sets], hubs.params[near]), units)
             hom = _Homotopy(comp.table, start.chart, C, hubs.weight)
         else:
-            hom = _line(comp.table, start.chart, C0, hubs.coefficients[near], hubs.weight)
+            hom = _line(comp.table, start.chart, target.astype(complex), hubs.coefficients[near], hubs.weight)
         hom = dataclasses.replace(hom, origins=hubs.factors)
         X = hubs.roots[near].reshape(sets.size * R, -1)
         origin = (near[:, None] * R + np.arange(R)).ravel()
         expected = hubs.infinite[near]
     else:
+        units = own_units
+        target = rescale(exps, coef[sets], units)
         expected = origin = None
-        hom = _line(comp.table, start.chart, C0, start.cstar[None])
+        hom = _line(comp.table, start.chart, target.astype(complex), start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
+    den_units = rescale(comp.denominator_table.exponents, den[sets], units) if den.shape[1] else den[sets]
     group = np.repeat(np.arange(sets.size), R)
     end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R,
                                                 expected_infinite=expected, origin=origin)
@@ -958,11 +972,11 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
                             "steady states may be missing")
 
     pts, ok, sing, spread = _polish_real(comp.table, points, target[owner], point_cond)
-    keep = ok & _off_poles(comp, pts, den[sets][owner], sing)
+    keep = ok & _off_poles(comp, pts, den_units[owner], sing)
     roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size, second[keep], spread[keep])
 
     out = np.full((b, roots.shape[1], n), np.nan)
-    out[sets] = roots
+    out[sets] = roots * np.exp(units)[:, None, :]   # back to the model's units
     all_counts = np.zeros(b, dtype=int)
     all_counts[sets] = counts
     all_work = np.zeros(b, dtype=np.int64)

@@ -17,6 +17,7 @@ import sympy
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.precedence import PRECEDENCE
 
+from poise.model.magnitudes import absolute_form
 from poise.model.system import ReducedSystem
 
 _MIN = sympy.Function("poise_min")
@@ -44,6 +45,11 @@ class Kernels:
     # (n + n*n, K) array out (f, then J row by row). Contiguous rows keep the many
     # elementwise operations of a Newton step cache-friendly.
     rhs_and_jacobian_rows: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    # Scale-aware helpers (`poise.model.scales`): typical state sizes P -> (B, n), and the
+    # size of the terms of each Jacobian entry (B, n, n) and of each full state (B, N).
+    sizes: Callable[[np.ndarray], np.ndarray] | None = None
+    jacobian_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    full_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
 
 
 def compile_kernels(system: ReducedSystem) -> Kernels:
@@ -54,7 +60,7 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     n, m = len(x), len(p)
     rhs = list(system.rhs)
     jac = list(system.jacobian) if n else []
-    terms = [sum(sympy.Abs(t) for t in sympy.Add.make_args(f)) for f in rhs]
+    terms = [absolute_form(f) for f in rhs]
     state_symbols = {s: sympy.Symbol(s, real=True) for s in system.states}
     full = [system.eliminated.get(s, state_symbols[s]) for s in system.states]
     scale_exprs = [system.scales[s] if system.scales[s] is not None else sympy.nan for s in system.free]
