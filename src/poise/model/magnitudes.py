@@ -231,7 +231,10 @@ def solve_levels(A: np.ndarray, b: np.ndarray) -> np.ndarray:
     if A.ndim == 2 or A.shape[0] == 1:
         # one solve per pattern of usable rows (nearly always a single pattern)
         A2 = A if A.ndim == 2 else A[0]
-        patterns, which = np.unique(use, axis=0, return_inverse=True)
+        if use.all():   # the common case: no coefficient vanishes
+            patterns, which = np.ones((1, rows), bool), np.zeros(batch, int)
+        else:
+            patterns, which = np.unique(use, axis=0, return_inverse=True)
         for k, pattern in enumerate(patterns):
             sets = np.flatnonzero(which.ravel() == k)
             Ak = A2[pattern]
