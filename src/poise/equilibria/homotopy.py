@@ -677,7 +677,7 @@ _HUB_NOISE = 0.1
 @dataclass(frozen=True, eq=False)
 class _Hubs:
     coefficients: np.ndarray  # (H, q, K) complex: start coefficients of each hub
-    anchor: np.ndarray        # (H, q*K) real: the hub's normalised coefficients
+    anchor: np.ndarray        # (H, 2*q*K) real: where the hub sits (`_hub_key`)
     roots: np.ndarray         # (H, R, n+1): every root at the start coefficients
     weight: np.ndarray        # (n+1,) typical size of each coordinate at the hubs' roots
     infinite: np.ndarray      # (H,) paths that diverge from the hub to its own real system
@@ -749,7 +749,7 @@ def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, units:
     # how many paths diverge on the way from each hub to its own (real) system: targets
     # near the hub should lose no more than that many to infinity
     own = _line(comp.table, start.chart, anchor.astype(complex), hub_coef, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), q * K), roots=roots,
+    return _Hubs(coefficients=hub_coef, anchor=_hub_key(comp.table, anchor, units), roots=roots,
                  weight=weight, infinite=_diverging(own, roots), log_units=units)
 
 
@@ -785,7 +785,7 @@ def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: 
     real = params[ok][kept]
     C = rescale(exps, along_line(comp.family, real, hub_params), units)
     own = _Homotopy(comp.table, start.chart, C, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), anchor[0].size), roots=roots,
+    return _Hubs(coefficients=hub_coef, anchor=_hub_key(comp.table, anchor, units), roots=roots,
                  weight=weight, infinite=_diverging(own, roots), params=hub_params, log_units=units)
 
 
@@ -829,21 +829,32 @@ def _typical_size(points: np.ndarray) -> np.ndarray:
     return np.maximum(size, 1e-8 * size.max())
 
 
-# coefficients (relative to their equation's largest) below this count as zero when
-# hubs are compared with a target in log scale
-_LOG_FLOOR = 1e-8
+# weight of a coefficient's sign against the logarithm of its size when hubs are compared
+_SIGN_WEIGHT = 20.0
 
 
-def _log_scale(coef: np.ndarray) -> np.ndarray:
-    """Signed log of normalised coefficients, for choosing the nearest hub.
+def _hub_key(table: _Table, coef: np.ndarray, log_units: np.ndarray | None = None) -> np.ndarray:
+    """Where each real system (B, q, K) sits, for choosing the nearest hub: the logarithm
+    of each coefficient's size in the model's own units (``coef`` is in the units
+    ``log_units`` when given), centred per equation (an equation's common factor does
+    not move its roots), and its sign.
 
     Roots move with the *relative* change of a coefficient: halving a coefficient of
-    1e-4 matters as much as halving one of 1, and Euclidean distance between the raw
-    normalised coefficients would see only the latter. Choosing hubs in this scale
-    shortened the paths of the bundled toggle switch from about 38 to 15 evaluations each
-    (benchmarks/bench_homotopy.py).
+    1e-4 matters as much as halving one of 1 (choosing hubs by relative change cut the
+    bundled toggle switch's paths from about 38 to 15 evaluations each,
+    benchmarks/bench_homotopy.py). Rewriting a state in other units shifts the
+    logarithms of target and hub alike, so the choice does not depend on units.
     """
-    return np.sign(coef) * np.log1p(np.abs(coef) / _LOG_FLOOR)
+    live = table.live
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logs = np.log(np.abs(coef))
+        if log_units is not None:
+            logs = logs - np.einsum("ikj,bj->bik", table.exponents[:, :, 1:].astype(float), log_units)
+        known = live & np.isfinite(logs)
+        mean = np.where(known, logs, 0.0).sum(axis=2, keepdims=True) / np.maximum(known.sum(axis=2, keepdims=True), 1)
+        centred = np.where(known, logs - mean, 0.0)
+    sign = np.where(live, np.sign(coef.real), 0.0) * _SIGN_WEIGHT
+    return np.concatenate([centred.reshape(len(coef), -1), sign.reshape(len(coef), -1)], axis=1)
 
 
 def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
@@ -885,10 +896,8 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     # of the hub it starts from, whose roots are known there; each equation scaled to
     # unit largest coefficient (same roots, better-balanced path)
     exps = comp.table.exponents
-    own_units = balance(exps, comp.table.live, coef[sets])
     if hubs is not None and len(hubs.roots):
-        near = _nearest(_log_scale(rescale(exps, coef[sets], own_units).reshape(sets.size, -1)),
-                        _log_scale(hubs.anchor))
+        near = _nearest(_hub_key(comp.table, coef[sets]), hubs.anchor)
         units = hubs.log_units[near]
         target = rescale(exps, coef[sets], units)
         R = hubs.roots.shape[1]
@@ -902,7 +911,7 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
         origin = (near[:, None] * R + np.arange(R)).ravel()
         expected = hubs.infinite[near]
     else:
-        units = own_units
+        units = balance(exps, comp.table.live, coef[sets])
         target = rescale(exps, coef[sets], units)
         expected = origin = None
         hom = _line(comp.table, start.chart, target.astype(complex), start.cstar[None])
