@@ -61,7 +61,7 @@ SOBOL_SEED = 12345
 # with closed-form steady states): fewer levels lose roots, more cost time for nothing.
 LEVELS = {
     1: (0.0, 1e-4, 1e-3, 1e-2, 0.03, 0.1, 0.3, 0.6, 1.0, 2.0, 4.0, 10.0),
-    2: (0.0, 0.3, 3.0),
+    2: (0.0, 0.2, 5.0),
     3: (0.0, 0.1, 1.0),
 }
 TWO_SIDED_LEVELS = {
