@@ -137,34 +137,14 @@ class MagnitudeProgram:
 
     def sizes(self, params: np.ndarray) -> np.ndarray:
         """Typical size of each state for each parameter set, shape (B, n)."""
-        return self.ranges(params)[1]
-
-    def ranges(self, params: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Smallest, typical and largest size of each state for each parameter set,
-        each (B, n). The typical size is the least-squares balance of all sums; the
-        smallest and largest are the sizes at which single sums balance, the others held
-        at their typical sizes (a steady state lies where some terms balance, so these
-        bracket where steady states are)."""
         params = np.asarray(params, dtype=float)
-        batch, n = params.shape[0], self.n
-        if n == 0:
-            empty = np.ones((batch, 0))
-            return empty, empty, empty
+        batch = params.shape[0]
+        if self.n == 0:
+            return np.ones((batch, 0))
         b = self.constants(params)
         A = self.constant_matrix if self.constant_matrix is not None else self.matrix(params)
         levels = solve_levels(A, b)
-        typical = levels[:, :n]
-        coef = np.broadcast_to(A, (batch,) + A.shape[-2:])[:, :, :n]
-        with np.errstate(all="ignore"):
-            residual = b - np.einsum("brc,bc->br", np.broadcast_to(A, (batch,) + A.shape[-2:]), levels)
-            implied = typical[:, None, :] + residual[:, :, None] / coef
-        usable = (coef != 0) & np.isfinite(implied)
-        low = np.where(usable, implied, np.inf).min(axis=1)
-        high = np.where(usable, implied, -np.inf).max(axis=1)
-        low = np.where(np.isfinite(low), np.minimum(low, typical), typical)
-        high = np.where(np.isfinite(high), np.maximum(high, typical), typical)
-        clip = lambda v: np.exp(np.clip(v, -_LOG_LIMIT, _LOG_LIMIT))  # noqa: E731
-        return clip(low), clip(typical), clip(high)
+        return np.exp(np.clip(levels[:, :self.n], -_LOG_LIMIT, _LOG_LIMIT))
 
 
 def magnitude_program(rhs: Sequence[sympy.Expr], states: Sequence[sympy.Symbol],
