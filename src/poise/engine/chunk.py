@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from poise.equilibria.continuum import on_continuum
+from poise.equilibria.limits import beyond_limits
 from poise.equilibria.finder import FoundStates, find_steady_states
 from poise.model import CompiledModel
 from poise.stability.classify import CLASS_NAMES, Classification, classify
@@ -70,6 +71,12 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
         sizes = None if sizes is None else sizes[keep]
         classes = classify(jacobians, sizes)
     ok, reason = _mark_bad_jacobians(found, jacobians)
+    limits = beyond_limits(model.kernels, found.free, found.full, params[found.owner], jacobians,
+                           classes.eigenvalues, classes.class_code < CLASS_NAMES.index("center"))
+    for row in np.flatnonzero(limits != ""):
+        if ok[found.owner[row]]:
+            ok[found.owner[row]] = False
+            reason[found.owner[row]] = limits[row]
 
     equilibria = _equilibria_table(study, found, classes, sample_ids)
     equilibria.insert(equilibria.columns.get_loc("oscillatory") + 1, "continuum", continuum)

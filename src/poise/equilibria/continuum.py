@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from poise.equilibria.zeros import equation_units, own_units
 from poise.model.kernels import Kernels
 
 STEP = 1e-4          # h, relative to each state's own size
@@ -38,11 +39,10 @@ def on_continuum(kernels: Kernels, x: np.ndarray, params: np.ndarray, jacobians:
     if rows.size == 0 or x.shape[1] == 0:
         return result
     xr, pr = x[rows], params[rows]
-    unit = _own_units(kernels, xr, pr)                               # (K, n)
+    unit = own_units(kernels, xr, pr)                                # (K, n)
     with np.errstate(all="ignore"):
         # each equation in units of how much a move of one own unit can change it
-        terms = np.abs(jacobians[rows]) if kernels.jacobian_terms is None else kernels.jacobian_terms(xr, pr)
-        rows_size = np.maximum(np.einsum("kij,kj->ki", terms, unit), np.finfo(float).tiny)
+        rows_size = equation_units(kernels, xr, pr, jacobians[rows], unit)
         scaled = jacobians[rows] * unit[:, None, :] / rows_size[:, :, None]
         v = np.linalg.svd(np.nan_to_num(scaled))[2][:, -1, :]       # (K, n), own units
         v /= np.abs(v).max(axis=1, keepdims=True)
@@ -59,11 +59,3 @@ def on_continuum(kernels: Kernels, x: np.ndarray, params: np.ndarray, jacobians:
         moved = np.abs((y - xr) / unit).max(axis=1) >= 0.5 * STEP
     result[rows] = solved & moved
     return result
-
-
-def _own_units(kernels: Kernels, x: np.ndarray, params: np.ndarray) -> np.ndarray:
-    """Each state's own size at the steady state: |x_i|, or its typical size where
-    x_i is zero."""
-    typical = np.ones_like(x) if kernels.sizes is None else np.abs(kernels.sizes(params))
-    typical = np.where(np.isfinite(typical) & (typical > 0), typical, 1.0)
-    return np.where(x != 0, np.abs(x), typical)

@@ -850,27 +850,35 @@ def _typical_size(points: np.ndarray) -> np.ndarray:
     return np.maximum(size, 1e-8 * size.max())
 
 
-# coefficients (relative to their equation's largest) below this count as zero when
-# hubs are compared with a target
-_LOG_FLOOR = 1e-8
-
-
 def _hub_key(coef: np.ndarray) -> np.ndarray:
-    """Where each real system (B, q, K) sits, for choosing the nearest hub: the signed
-    logarithm of its coefficients, each relative to its equation's largest.
+    """Where each real system (B, q, K) sits, for choosing the nearest hub: the logarithm
+    of each coefficient's size, centred per equation (an equation's common factor does
+    not move its roots), and its sign.
 
     Roots move with the *relative* change of a coefficient: halving a coefficient of
-    1e-4 matters as much as halving one of 1, and Euclidean distance between the raw
-    normalised coefficients would see only the latter. Choosing hubs in this scale
-    shortened the paths of the bundled toggle switch from about 38 to 15 evaluations each
-    (benchmarks/bench_homotopy.py). The coefficients are taken in the model's units:
-    in the hubs' balanced units the choice was worse (84 against 76 evaluations per set
-    on the toggle switch). Which hub a target starts from changes the path, never the
-    roots at its end, so this is a matter of speed only.
+    1e-4 matters as much as halving one of 1 (choosing hubs by relative change cut the
+    bundled toggle switch's paths from about 38 to 15 evaluations each,
+    benchmarks/bench_homotopy.py). No floor: a coefficient 1e-170 times its equation's
+    largest still tells hubs apart (a floor made every such hub look alike, and a target
+    solved in the units of a hub 1e140 away lost its root). Rewriting a state in other
+    units shifts the logarithms of target and hub alike, so the choice does not depend
+    on units.
     """
-    with np.errstate(invalid="ignore", divide="ignore"):
-        normal = coef / np.abs(coef).max(axis=2, keepdims=True)
-    return (np.sign(normal) * np.log1p(np.abs(normal) / _LOG_FLOOR)).reshape(len(coef), -1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logs = np.log(np.abs(coef))
+        known = np.isfinite(logs)
+        mean = np.where(known, logs, 0.0).sum(axis=2, keepdims=True) / np.maximum(known.sum(axis=2, keepdims=True), 1)
+        centred = np.where(known, logs - mean, 0.0)
+    sign = np.sign(coef) * _SIGN_WEIGHT
+    return np.concatenate([centred.reshape(len(coef), -1), sign.reshape(len(coef), -1)], axis=1)
+
+
+# weight of a coefficient's sign against the logarithm of its size when hubs are compared
+_SIGN_WEIGHT = 20.0
+# a target whose own balanced units differ from its hub's by more than this factor in
+# some state is flagged (status 1) and solved again by Newton: its roots would be far
+# from order one in the hub's units
+_UNITS_APART = np.log(1e6)
 
 
 def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
@@ -915,6 +923,10 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     if hubs is not None and len(hubs.roots):
         near = _nearest(_hub_key(coef[sets]), hubs.anchor)
         units = hubs.log_units[near]
+        apart = (np.abs(balance(exps, comp.table.live, coef[sets]) - units) > _UNITS_APART).any(axis=1)
+        for j in np.flatnonzero(apart & (status[sets] == 0)):
+            status[sets[j]] = 1
+            message[sets[j]] = "roots far from the sizes at every hub; solved again by Newton"
         target = rescale(exps, coef[sets], units)
         R = hubs.roots.shape[1]
         if hubs.params is not None:  # along a line in parameter space

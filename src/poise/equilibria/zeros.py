@@ -62,3 +62,21 @@ def inside_domain(full: np.ndarray, low: np.ndarray, high: np.ndarray) -> np.nda
     slack_low = DOMAIN_TOLERANCE * np.where(np.isfinite(low), np.abs(low), 0.0)
     slack_high = DOMAIN_TOLERANCE * np.where(np.isfinite(high), np.abs(high), 0.0)
     return ((full >= low - slack_low) & (full <= high + slack_high)).all(axis=1)
+
+
+def own_units(kernels: Kernels, x: np.ndarray, params: np.ndarray) -> np.ndarray:
+    """Each state's own size at steady states `x` (R, n): |x_i|, or the state's typical
+    size where x_i is zero."""
+    typical = np.ones_like(x) if kernels.sizes is None else np.abs(kernels.sizes(params))
+    typical = np.where(np.isfinite(typical) & (typical > 0), typical, 1.0)
+    return np.where(x != 0, np.abs(x), typical)
+
+
+def equation_units(kernels: Kernels, x: np.ndarray, params: np.ndarray, jacobians: np.ndarray,
+                   unit: np.ndarray) -> np.ndarray:
+    """Each equation's own size at `x`: how much a move of one own unit (`unit`, (R, n))
+    in each state can change it, from the size of the Jacobian's terms. (R, n), > 0."""
+    terms = np.abs(jacobians) if kernels.jacobian_terms is None else kernels.jacobian_terms(x, params)
+    with np.errstate(invalid="ignore", over="ignore"):
+        size = np.einsum("kij,kj->ki", terms, unit)
+    return np.maximum(np.where(np.isfinite(size), size, np.inf), np.finfo(float).tiny)
