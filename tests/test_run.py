@@ -172,19 +172,16 @@ OVERFLOW = """
 def test_sets_that_overflow_are_recorded_as_failed(tmp_path):
     # IEEE 754: exp(q) overflows to inf for q > log(max float) ≈ 709.78 (numpy.finfo), so
     # x' = a - exp(q) x cannot be evaluated there; below it the steady state a/exp(q) is
-    # a stable node (closed form) with eigenvalue -exp(q). Beyond 1e150 (q > 345.4) its
-    # square would overflow too (1e300 is near the largest double, 1.8e308): poise flags
-    # such sets rather than classify them.
+    # a stable node (closed form), however small (down to 1e-308: the model is linear in
+    # x, nothing is squared).
     study = load_study(write_study(tmp_path, OVERFLOW))
     result = run_study(study, tmp_path / "run", jobs=1, report=False)
     samples = result.samples
     limit = math.log(np.finfo(float).max)
     failed = samples["status"] == "failed"
-    assert failed.to_numpy().tolist() == (samples["q"] > math.log(1e150)).to_numpy().tolist()
-    assert (samples["q"] > limit).sum() > 0
-    overflow = samples["q"] > limit
-    assert (samples.loc[overflow, "reason"].str.contains("cannot be evaluated")).all()
-    assert (samples.loc[failed & ~overflow, "reason"].str.contains("beyond 1e±150")).all()
+    assert failed.to_numpy().tolist() == (samples["q"] > limit).to_numpy().tolist()
+    assert failed.sum() > 0
+    assert (samples.loc[failed, "reason"].str.contains("cannot be evaluated")).all()
     summary = result.summary
     assert summary["samples"]["failed"] == int(failed.sum())
     assert summary["claims"]["stable"]["n"] == int((~failed).sum())

@@ -72,7 +72,8 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
         classes = classify(jacobians, sizes)
     ok, reason = _mark_bad_jacobians(found, jacobians)
     limits = beyond_limits(model.kernels, found.free, found.full, params[found.owner], jacobians,
-                           classes.eigenvalues, classes.class_code < CLASS_NAMES.index("center"))
+                           classes.eigenvalues, classes.class_code < CLASS_NAMES.index("center"),
+                           model.nonlinear)
     for row in np.flatnonzero(limits != ""):
         if ok[found.owner[row]]:
             ok[found.owner[row]] = False

@@ -1,10 +1,13 @@
 """Steady states at the limits of double precision: flagged, never classified as if sure.
 
-A steady state whose values, or whose rates (eigenvalues), lie beyond about 1e±150
-cannot have its squares and products formed without overflow or underflow, and one
-whose Jacobian, measured in its own units, has a condition number beyond 1e14 is
-determined only to a few digits: rounding alone could move its class. Such sets are
-reported as not analysed, with the reason, instead of classified.
+In a model that is nonlinear in its states, a steady state with values beyond about
+1e±150 cannot have its squares and products formed without overflow or underflow (a
+linear model forms none, and is solved exactly whatever its sizes; an evaluation that
+overflows marks its set as not evaluable anyway). A steady state whose Jacobian,
+measured in its own units, has a condition number beyond 1e14 is determined only to a
+few digits: rounding alone could move its class. Such sets are reported as not
+analysed, with the reason, instead of classified. Eigenvalues are computed on scaled
+matrices and need no such limit.
 """
 
 from __future__ import annotations
@@ -22,7 +25,8 @@ SPREAD_TO_TEST = 1e8
 
 
 def beyond_limits(kernels: Kernels, free: np.ndarray, full: np.ndarray, params: np.ndarray,
-                  jacobians: np.ndarray, eigenvalues: np.ndarray, hyperbolic: np.ndarray) -> np.ndarray:
+                  jacobians: np.ndarray, eigenvalues: np.ndarray, hyperbolic: np.ndarray,
+                  nonlinear: bool = True) -> np.ndarray:
     """Why each steady state (rows) is beyond double precision's limits, "" if it is not.
 
     The condition number is tested only where the class claims every eigenvalue off the
@@ -30,11 +34,10 @@ def beyond_limits(kernels: Kernels, free: np.ndarray, full: np.ndarray, params: 
     reason = np.full(len(full), "", dtype=object)
     with np.errstate(all="ignore"):
         size = np.abs(full)
-        extreme = ((size > EXTREME) | ((size > 0) & (size < 1.0 / EXTREME))).any(axis=1)
+        extreme = ((size > EXTREME) | ((size > 0) & (size < 1.0 / EXTREME))).any(axis=1) & nonlinear
+        reason[extreme] = ("a steady-state value beyond 1e±150 in a model nonlinear in its states "
+                           "(the limit of double precision)")
         rate = np.abs(eigenvalues)
-        fast_or_slow = ((rate > EXTREME) | ((rate > 0) & (rate < 1.0 / EXTREME))).any(axis=1)
-        reason[extreme] = "a steady-state value beyond 1e±150 (the limit of double precision)"
-        reason[fast_or_slow & ~extreme] = "an eigenvalue beyond 1e±150 (the limit of double precision)"
         spread = rate.max(axis=1, initial=0.0) / np.where(rate.min(axis=1, initial=0.0) > 0,
                                                           rate.min(axis=1, initial=0.0), np.nan)
         test = np.flatnonzero(~(spread <= SPREAD_TO_TEST) & (reason == "") & hyperbolic

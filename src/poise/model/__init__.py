@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Mapping, Sequence
 
 import numpy as np
@@ -35,6 +36,12 @@ class CompiledModel:
     @property
     def dimension(self) -> int:
         return self.kernels.n
+
+    @cached_property
+    def nonlinear(self) -> bool:
+        """Whether some equation is nonlinear in the states (its Jacobian depends on them)."""
+        states = set(self.system.free_symbols)
+        return any(expr.free_symbols & states for expr in self.system.jacobian)
 
 
 def compile_model(study: Study, values: Mapping[str, float] | None = None,
