@@ -38,6 +38,7 @@ from scipy.stats import qmc
 
 from poise.equilibria.linalg import solve_rows
 from poise.equilibria.newton import newton
+from poise.equilibria.transient import settle
 from poise.equilibria.zeros import inside_domain, snap_zeros
 from poise.model.kernels import Kernels
 
@@ -173,8 +174,13 @@ def _find(kernels, params, domain_low, domain_high, starts=0, deflation_rounds=2
     solve = _Solver(kernels, params, scale, max_iterations)
 
     grid = start_points(n, free_low < 0, starts)
+    x0 = np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :]
+    if kernels.initial is not None:
+        # the model's own initial state, and where the dynamics from it settle, are starts too
+        settled = settle(kernels, params, kernels.initial, free_low, free_high)
+        x0 = np.concatenate([x0, np.broadcast_to(kernels.initial, (batch, 1, n)), settled[:, None, :]], axis=1)
     everyone = np.arange(batch)
-    x, converged, evaluable = solve.run(everyone, np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :])
+    x, converged, evaluable = solve.run(everyone, x0)
     roots = _Roots(scale, free_low, free_high)
     roots.add(everyone, x, converged)
 

@@ -53,7 +53,7 @@ def compile_model(study: Study, values: Mapping[str, float] | None = None,
     fixed_values = {k: float(v) for k, v in values.items() if k not in varying}
     system = reduce(study, fixed_values, varying)
     _check_real(study, system)
-    kernels = dataclasses.replace(compile_kernels(system), **scale_kernels(system))
+    kernels = dataclasses.replace(compile_kernels(system), **scale_kernels(system, study.initial))
     low = np.array([study.domain[s][0] for s in study.states])
     high = np.array([study.domain[s][1] for s in study.states])
     return CompiledModel(system=system, kernels=kernels, varying=varying,

@@ -50,6 +50,8 @@ class Kernels:
     sizes: Callable[[np.ndarray], np.ndarray] | None = None
     jacobian_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
     full_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    # the model's own initial state (SBML), free states (n,), when it gives one: a start
+    initial: np.ndarray | None = None
 
 
 def compile_kernels(system: ReducedSystem) -> Kernels:
