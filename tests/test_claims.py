@@ -52,8 +52,8 @@ CASES = [
      lambda rows, p: all(_ne(row["A"], 1.5) for row in rows)),
     ("any(exp(-A) < 0.5 * min(r, K))",
      lambda rows, p: any(math.exp(-row["A"]) < 0.5 * min(p["r"], p["K"]) for row in rows)),
-    ("count(stable and oscillatory) >= 1 or all(margin <= 0)",
-     lambda rows, p: sum(row["stable"] and row["oscillatory"] for row in rows) >= 1
+    ("count(stable and complex_eigenvalues) >= 1 or all(margin <= 0)",
+     lambda rows, p: sum(row["stable"] and row["complex_eigenvalues"] for row in rows) >= 1
      or all(row["margin"] <= 0 for row in rows)),
     ("2 * count(stable) ** 2 / 4 > r + 1",
      lambda rows, p: 2 * sum(row["stable"] for row in rows) ** 2 / 4 > p["r"] + 1),
@@ -88,7 +88,7 @@ def _small_table():
     """Four sets: two steady states, one, none at all, and three with a NaN value."""
     rows = [  # (set, A, G, margin, flags that are true)
         (0, 0.0, 0.0, -1.0, {"unstable", "node"}),
-        (0, 1.5, 0.7, 0.6, {"stable", "focus", "oscillatory"}),
+        (0, 1.5, 0.7, 0.6, {"stable", "focus", "complex_eigenvalues"}),
         (1, 3.0, 1e-12, 0.2, {"stable", "node"}),
         # set 2 has no steady state
         (3, float("nan"), 2.0, 0.1, {"stable", "node"}),

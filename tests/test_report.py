@@ -110,7 +110,7 @@ def build_run(root: Path, *, title: str = "Grazers and algae", with_claims: bool
             row = {"sample_id": int(i), "index": index}
             row.update({s: (samples.at[i, "K"] if j < index else 0.0) for j, s in enumerate(states)})
             row.update({"label": labels[index], "class": klass, "stability": stability,
-                        "margin": -re_[0], "oscillatory": bool(np.any(im_ != 0))})
+                        "margin": -re_[0], "complex_eigenvalues": bool(np.any(im_ != 0))})
             for j in range(len(reduced)):
                 row[f"eig_re_{j}"], row[f"eig_im_{j}"] = re_[j], im_[j]
             if len(reduced) == 2:

@@ -64,6 +64,12 @@ class RunResult:
     def equilibria(self) -> pd.DataFrame:
         return pd.read_parquet(self.directory / "equilibria.parquet")
 
+    @cached_property
+    def trajectories(self) -> pd.DataFrame:
+        """One row per simulated trajectory (studies with [long_run]; else empty)."""
+        path = self.directory / "trajectories.parquet"
+        return pd.read_parquet(path) if path.exists() else pd.DataFrame()
+
     def __repr__(self) -> str:
         samples = self.summary["samples"]
         lines = [f"<poise run '{self.manifest.get('title', '')}' in {self.directory}>",
@@ -147,6 +153,9 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
                          sobol_indices=sobol, second_order=study.sensitivity.second_order)
     params = map_to_parameters(design, study.uncertain)
     model = compile_model(study)
+    if study.long_run is not None:
+        from poise.longrun.pipeline import check_long_run
+        check_long_run(study, model)
 
     with RunLock(directory):
         remove_stale(directory)
@@ -173,8 +182,13 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
         outcomes, tallies = assemble(directory, manifest, samples)
         summary = _summary(study, outcomes, tallies, design, sobol)
         summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params)
+        files = list(OUTPUTS)
+        if study.long_run is not None:
+            files += _long_run_outputs(directory, study, model, outcomes, params, summary)
         write_atomic(directory / "summary.json", (json.dumps(summary, indent=2) + "\n").encode())
-        manifest.update(complete=True, seconds=round(time.time() - started, 3), files=list(OUTPUTS))
+        if study.long_run is not None:   # what was simulated, beside the study's own text
+            manifest["long_run"] = {**summary["long_run"]["settings"], **summary["long_run"]["sets"]}
+        manifest.update(complete=True, seconds=round(time.time() - started, 3), files=files)
         write_manifest(directory, manifest)
         if report:
             _write_report(directory, manifest)
@@ -246,6 +260,21 @@ def _summary(study: Study, outcomes: pd.DataFrame, tallies, design, sobol: bool)
                                            study.sensitivity.second_order, study.sensitivity.resamples,
                                            study.sampling.seed, study.sensitivity.method),
     }
+
+
+def _long_run_outputs(directory: Path, study: Study, model, outcomes: pd.DataFrame, params: np.ndarray,
+                      summary: dict) -> list[str]:
+    """summary.json's "long_run" entry and timecourses.parquet; the files it adds."""
+    from poise.engine.storage import frame_bytes
+    from poise.longrun.courses import time_courses
+    from poise.longrun.summary import long_run_summary
+
+    summary["long_run"] = long_run_summary(study, outcomes, directory)
+    summary["long_run"]["time_courses"] = {"file": "timecourses.parquet",
+                                           "method": "scipy.integrate.solve_ivp (Radau)"}
+    courses = time_courses(directory, study, model, outcomes, params)
+    write_atomic(directory / "timecourses.parquet", frame_bytes(courses))
+    return ["trajectories.parquet", "timecourses.parquet"]
 
 
 def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.DataFrame,

@@ -10,6 +10,7 @@ Arrow (no pandas round trip), as it runs in the parent, after all workers are do
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from collections import Counter, defaultdict
 from dataclasses import dataclass
@@ -64,9 +65,12 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
     classes: dict[str, Counter] = defaultdict(Counter)
     kept: list[pa.Table] = []
     start = 0
+    with_trajectories = any("trajectories" in record for record in manifest["chunks"].values())
     with _Streamed(directory / "samples.parquet") as samples_out, \
             _Streamed(directory / "outcomes.parquet") as outcomes_out, \
-            _Streamed(directory / "equilibria.parquet") as equilibria_out:
+            _Streamed(directory / "equilibria.parquet") as equilibria_out, \
+            (_Streamed(directory / "trajectories.parquet") if with_trajectories
+             else contextlib.nullcontext()) as trajectories_out:
         for key in sorted(manifest["chunks"], key=int):
             record = manifest["chunks"][key]
             sets = pq.read_table(directory / record["sets"]["file"])
@@ -87,6 +91,9 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
             part = pq.read_table(directory / record["equilibria"]["file"])
             equilibria_out.write(part, pandas_types=False)
             _tally(part, usable.to_numpy(zero_copy_only=False), start, presence, classes)
+            if trajectories_out is not None and "trajectories" in record:
+                trajectories_out.write(pq.read_table(directory / record["trajectories"]["file"]),
+                                       pandas_types=False)
             start = stop
         if start != len(samples):
             raise RuntimeError(f"the parts hold {start} sets, the design {len(samples)}")
@@ -102,10 +109,11 @@ def _to_pandas(tables: list[pa.Table]) -> pd.DataFrame:
         return pd.DataFrame()
     frame = pa.concat_tables(tables).to_pandas()
     for column in frame.columns:
-        if column in NULLABLE_COUNTS:
+        kind = tables[0].schema.field(column).type
+        if column in NULLABLE_COUNTS or (pa.types.is_integer(kind) and column != "sample_id"):
             frame[column] = frame[column].astype("Int64")
-        elif column not in ("sample_id", "block", "independent", "status"):
-            frame[column] = frame[column].astype("boolean")   # one per claim
+        elif pa.types.is_boolean(kind) and column != "independent":
+            frame[column] = frame[column].astype("boolean")   # one per claim, and cycles
     frame["status"] = frame["status"].astype(STATUS)
     return frame
 
@@ -128,9 +136,10 @@ def _pandas_schema(table: pa.Table) -> pa.Schema:
     back as Int64 and claim columns as boolean (the run directory contract)."""
     template = table.slice(0, 0).to_pandas()
     for column in template.columns:
-        if column in NULLABLE_COUNTS:
+        if column in NULLABLE_COUNTS or (pa.types.is_integer(table.schema.field(column).type)
+                                         and column != "sample_id"):
             template[column] = template[column].astype("Int64")
-        elif pa.types.is_boolean(table.schema.field(column).type) and column not in ("independent", "oscillatory"):
+        elif pa.types.is_boolean(table.schema.field(column).type) and column != "independent":
             template[column] = template[column].astype("boolean")
     return pa.Schema.from_pandas(template, preserve_index=False)
 

@@ -31,6 +31,7 @@ class ChunkResult:
     sets: pd.DataFrame
     equilibria: pd.DataFrame
     jacobians: np.ndarray       # (R, n, n) reduced Jacobians of the equilibria rows
+    trajectories: pd.DataFrame | None = None   # with [long_run]: rows of trajectories.parquet
 
 
 def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
@@ -80,11 +81,19 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
             reason[found.owner[row]] = limits[row]
 
     equilibria = _equilibria_table(study, found, classes, sample_ids)
-    equilibria.insert(equilibria.columns.get_loc("oscillatory") + 1, "continuum", continuum)
-    sets = _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason)
+    equilibria.insert(equilibria.columns.get_loc("complex_eigenvalues") + 1, "continuum", continuum)
+    simulated = None
+    if study.long_run is not None:   # where trajectories go: one batched simulation of the chosen sets
+        from poise.longrun.pipeline import long_run_columns
+        simulated = long_run_columns(study, model, found.owner, found.free, jacobians, equilibria["label"].to_numpy(),
+                                     sample_ids, params, ok)
+        for name, values in simulated.steady.items():
+            equilibria[name] = values
+    sets = _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason, simulated)
     keep = ok[found.owner]
     return ChunkResult(sets=sets, equilibria=equilibria[keep].reset_index(drop=True),
-                       jacobians=jacobians[keep])
+                       jacobians=jacobians[keep],
+                       trajectories=None if simulated is None else simulated.trajectories)
 
 
 def _jacobian_terms(model: CompiledModel, found: FoundStates, params: np.ndarray) -> np.ndarray | None:
@@ -128,7 +137,7 @@ def _equilibria_table(study: Study, found: FoundStates, classes: Classification,
     columns["class"] = np.asarray(CLASS_NAMES, dtype=object)[classes.class_code]
     columns["stability"] = np.asarray(classes.stability_names, dtype=object)
     columns["margin"] = classes.margin
-    columns["oscillatory"] = classes.oscillatory
+    columns["complex_eigenvalues"] = classes.oscillatory
     for i in range(classes.eigenvalues.shape[1]):
         columns[f"eig_re_{i}"] = classes.eigenvalues[:, i].real
         columns[f"eig_im_{i}"] = classes.eigenvalues[:, i].imag
@@ -138,7 +147,7 @@ def _equilibria_table(study: Study, found: FoundStates, classes: Classification,
     return pd.DataFrame(columns)
 
 
-def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason) -> pd.DataFrame:
+def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason, simulated=None) -> pd.DataFrame:
     batch = sample_ids.size
     owner = found.owner
     stable = classes.stability_code == 0
@@ -152,24 +161,34 @@ def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason
         "n_stable": pd.array(np.where(ok, n_stable, 0), dtype="Int64"),
     })
     frame.loc[~ok, ["n_steady", "n_stable"]] = pd.NA
+    if simulated is not None:
+        for name, values in simulated.sets.items():
+            frame[name] = values
     if study.claims:
         steady = {state: found.full[:, j] for j, state in enumerate(study.states)}
         code = classes.class_code
         steady.update(stable=stable, unstable=classes.stability_code == 1,
                       undetermined=classes.stability_code == 2, node=NODE[code],
-                      focus=FOCUS[code], saddle=SADDLE[code], oscillatory=classes.oscillatory,
+                      focus=FOCUS[code], saddle=SADDLE[code], complex_eigenvalues=classes.oscillatory,
                       margin=classes.margin)
         sets = {name: np.full(batch, value) for name, value in model.fixed_values.items()}
         sets.update({name: params[:, j] for j, name in enumerate(model.varying)})
+        if simulated is not None:
+            steady.update(simulated.claim_steady)
+            sets.update(simulated.claim_sets)
         for claim in study.claims:
             values, undefined = claim.evaluate_sets(steady, owner, sets, batch)
             frame[claim.name] = pd.array(np.where(ok, values, False), dtype="boolean")
+            if claim.long_run_words:   # no answer where the set was not simulated
+                frame.loc[~simulated.simulated, claim.name] = pd.NA
+                undefined &= simulated.simulated
             undefined &= (frame["status"] == "ok").to_numpy()   # a claim error fails its set
             frame.loc[undefined, "reason"] = (f"claim '{claim.name}' is undefined here (a division "
                                               "by zero or a number out of range)")
             frame.loc[undefined, "status"] = "failed"
         failed = (frame["status"] != "ok").to_numpy()
-        frame.loc[failed, ["n_steady", "n_stable", *(claim.name for claim in study.claims)]] = pd.NA
+        long_run = list(simulated.sets) if simulated is not None else []
+        frame.loc[failed, ["n_steady", "n_stable", *(claim.name for claim in study.claims), *long_run]] = pd.NA
     return frame
 
 

@@ -25,7 +25,8 @@ from typing import Callable, Iterator
 
 import numpy as np
 
-from poise.engine.storage import part_is_valid, part_paths, sha256, write_atomic, write_manifest
+from poise.engine.storage import (part_is_valid, part_paths, sha256, trajectory_part_path, write_atomic,
+                                  write_manifest)
 from poise.engine.worker import ChunkOutput, prepared, run_chunk
 
 ATTEMPTS = 2                 # first try and one retry
@@ -185,19 +186,22 @@ def _record(directory: Path, manifest: dict, output: ChunkOutput) -> None:
     sets_file, eq_file = part_paths(output.index)
     write_atomic(directory / sets_file, output.sets, sync_folder=False)
     write_atomic(directory / eq_file, output.equilibria, sync_folder=False)
-    manifest["chunks"][str(output.index)] = {
-        "sets": {"file": sets_file, "sha256": sha256(output.sets)},
-        "equilibria": {"file": eq_file, "sha256": sha256(output.equilibria)},
-    }
+    record = {"sets": {"file": sets_file, "sha256": sha256(output.sets)},
+              "equilibria": {"file": eq_file, "sha256": sha256(output.equilibria)}}
+    if output.trajectories:
+        record["trajectories"] = {"file": trajectory_part_path(output.index), "sha256": sha256(output.trajectories)}
+        write_atomic(directory / record["trajectories"]["file"], output.trajectories, sync_folder=False)
+    manifest["chunks"][str(output.index)] = record
     write_manifest(directory, manifest)
 
 
 def _failed_chunk(study_path: str, study_text: str, task: ChunkTask, error: str) -> ChunkOutput:
     """Every set of a chunk that failed twice, recorded as failed with the reason."""
     import pandas as pd
+    import pyarrow as pa
 
     from poise.engine.storage import frame_bytes
-    from poise.engine.worker import equilibria_schema, sets_schema
+    from poise.engine.worker import equilibria_schema, sets_schema, trajectories_bytes
 
     study, model = prepared(study_path, study_text)
     ids = np.arange(task.start, task.stop, dtype=np.int64)
@@ -205,12 +209,14 @@ def _failed_chunk(study_path: str, study_text: str, task: ChunkTask, error: str)
     sets = pd.DataFrame({"sample_id": ids, "status": "failed",
                          "reason": f"the chunk failed twice: {error}",
                          "n_steady": missing, "n_stable": missing.copy()})
-    for claim in study.claims:
-        sets[claim.name] = pd.array([pd.NA] * ids.size, dtype="boolean")
-    schema = equilibria_schema(study.states, model.dimension)
-    empty = schema.empty_table().to_pandas()
-    return ChunkOutput(index=task.index, sets=frame_bytes(sets, sets_schema(study)),
-                       equilibria=frame_bytes(empty, schema))
+    schema = sets_schema(study)
+    for field in schema:   # long-run and claim columns: missing
+        if field.name not in sets.columns:
+            sets[field.name] = pa.nulls(ids.size, field.type).to_pandas()
+    eq_schema = equilibria_schema(study.states, model.dimension, study.long_run is not None)
+    empty = eq_schema.empty_table().to_pandas()
+    return ChunkOutput(index=task.index, sets=frame_bytes(sets, schema),
+                       equilibria=frame_bytes(empty, eq_schema), trajectories=trajectories_bytes(study, None))
 
 
 # --- where chunks run -------------------------------------------------------------

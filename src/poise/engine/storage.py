@@ -167,10 +167,15 @@ def part_paths(index: int) -> tuple[str, str]:
     return (f"{PARTS}/chunk-{index:06d}.sets.parquet", f"{PARTS}/chunk-{index:06d}.equilibria.parquet")
 
 
+def trajectory_part_path(index: int) -> str:
+    """Relative path of a chunk's trajectories (studies with [long_run])."""
+    return f"{PARTS}/chunk-{index:06d}.trajectories.parquet"
+
+
 def part_is_valid(directory: Path, record: dict) -> bool:
     """Whether a finished chunk's files exist, match their recorded hashes and parse."""
     try:
-        for key in ("sets", "equilibria"):
+        for key in ("sets", "equilibria", *(("trajectories",) if "trajectories" in record else ())):
             data = (directory / record[key]["file"]).read_bytes()
             if sha256(data) != record[key]["sha256"]:
                 return False

@@ -31,6 +31,7 @@ class ChunkOutput:
     sets: bytes = b""
     equilibria: bytes = b""
     error: str = ""
+    trajectories: bytes = b""   # with [long_run] only
 
 
 def prepared(study_path: str, study_text: str):
@@ -61,7 +62,9 @@ def run_chunk(study_path: str, study_text: str, index: int, sample_ids: np.ndarr
         return ChunkOutput(
             index=index,
             sets=frame_bytes(result.sets, sets_schema(study)),
-            equilibria=frame_bytes(result.equilibria, equilibria_schema(study.states, model.dimension)),
+            equilibria=frame_bytes(result.equilibria, equilibria_schema(study.states, model.dimension,
+                                                                        study.long_run is not None)),
+            trajectories=trajectories_bytes(study, result.trajectories),
         )
     except Exception as exc:  # recorded and retried by the runner, never lost
         last = traceback.format_exception_only(type(exc), exc)[-1].strip()
@@ -72,17 +75,32 @@ def sets_schema(study) -> pa.Schema:
     fields = [pa.field("sample_id", pa.int64()), pa.field("status", pa.string()),
               pa.field("reason", pa.string()), pa.field("n_steady", pa.int64()),
               pa.field("n_stable", pa.int64())]
+    if study.long_run is not None:
+        from poise.longrun.pipeline import set_fields
+        fields += set_fields(study.states)
     fields += [pa.field(claim.name, pa.bool_()) for claim in study.claims]
     return pa.schema(fields)
 
 
-def equilibria_schema(states, dimension: int) -> pa.Schema:
+def trajectories_bytes(study, frame) -> bytes:
+    """trajectories.parquet rows of a chunk (empty bytes without [long_run])."""
+    if study.long_run is None:
+        return b""
+    from poise.longrun.pipeline import trajectory_schema
+    schema = trajectory_schema(study.states)
+    return frame_bytes(schema.empty_table().to_pandas() if frame is None else frame, schema)
+
+
+def equilibria_schema(states, dimension: int, long_run: bool = False) -> pa.Schema:
     fields = [pa.field("sample_id", pa.int64()), pa.field("index", pa.int64())]
     fields += [pa.field(s, pa.float64()) for s in states]
     fields += [pa.field("label", pa.string()), pa.field("class", pa.string()),
                pa.field("stability", pa.string()), pa.field("margin", pa.float64()),
-               pa.field("oscillatory", pa.bool_()), pa.field("continuum", pa.bool_())]
+               pa.field("complex_eigenvalues", pa.bool_()), pa.field("continuum", pa.bool_())]
     for i in range(dimension):
         fields += [pa.field(f"eig_re_{i}", pa.float64()), pa.field(f"eig_im_{i}", pa.float64())]
     fields += [pa.field(name, pa.float64()) for name in ("trace", "determinant", "discriminant")]
+    if long_run:
+        from poise.longrun.pipeline import steady_fields
+        fields += steady_fields()
     return pa.schema(fields)

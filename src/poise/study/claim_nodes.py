@@ -34,6 +34,16 @@ class Columns:
                              f"expected ({self.n_sets},)")
         return values[self.owner] if self.per_row else values
 
+    def set_value(self, name: str, dtype) -> np.ndarray:
+        """A value per set (long-run results), per row inside an aggregator."""
+        try:
+            values = np.asarray(self.sets[name], dtype=dtype)
+        except KeyError:
+            raise ValueError(f"set table lacks column '{name}'") from None
+        if values.shape != (self.n_sets,):
+            raise ValueError(f"set column '{name}' has shape {values.shape}, expected ({self.n_sets},)")
+        return values[self.owner] if self.per_row else values
+
     def steady_column(self, name: str, dtype) -> np.ndarray:
         try:
             values = np.asarray(self.steady[name], dtype=dtype)
@@ -52,6 +62,14 @@ class Columns:
 
 def _bad(value) -> np.ndarray:
     return ~np.isfinite(value)
+
+
+def _new_bad(result, operands) -> np.ndarray:
+    """Not finite although no operand was NaN: a division by zero, an overflow. A NaN
+    operand (a long-run number where no orbit was found) carries "no value" along, which
+    is not an error."""
+    absent = _either([np.isnan(value) for value in operands])
+    return _bad(result) & ~absent
 
 
 def _either(masks) -> np.ndarray:
@@ -87,6 +105,19 @@ class SteadyColumn:
 
 
 @dataclass(frozen=True)
+class SetValue:
+    """A long-run value of a whole set (``cycles``, ``period``, ``amplitude(x)``); NaN
+    where no orbit was found means "no value", not an error."""
+
+    name: str
+    is_flag: bool
+
+    def evaluate(self, columns: Columns):
+        values = columns.set_value(self.name, bool if self.is_flag else float)
+        return values, np.False_
+
+
+@dataclass(frozen=True)
 class Arithmetic:
     """``first op1 x1 op2 x2 ...`` applied left to right (flat, so long sums need no recursion)."""
 
@@ -95,8 +126,10 @@ class Arithmetic:
 
     def evaluate(self, columns: Columns):
         result, undefined = self.first.evaluate(columns)
+        operands = [result]
         for op, operand in self.steps:
             value, unknown = operand.evaluate(columns)
+            operands.append(value)
             undefined = undefined | unknown
             if op == "+":
                 result = result + value
@@ -108,7 +141,7 @@ class Arithmetic:
                 result = result / value
             else:
                 result = result ** value
-        return result, undefined | _bad(result)
+        return result, undefined | _new_bad(result, operands)
 
 
 @dataclass(frozen=True)
@@ -136,7 +169,7 @@ class Function:
             result = np.maximum.reduce(np.broadcast_arrays(*values))
         else:
             result = _NUMPY_FUNCTIONS[self.name](values[0])
-        return result, _either(unknown) | _bad(result)
+        return result, _either(unknown) | _new_bad(result, values)
 
 
 @dataclass(frozen=True)
@@ -213,3 +246,21 @@ class Aggregate:
         if self.kind == "none":
             return hits == 0, unknowns & ~sure
         return hits.astype(float), unknowns
+
+
+@dataclass(frozen=True)
+class BasinShare:
+    """``basin(cond)``: per set, the sum of the ``basin`` column (the share of the set's
+    box starts that settle at each steady state) over the steady states where `cond`
+    holds; undefined where `cond` is undefined at a steady state some start reached."""
+
+    condition: object
+
+    def evaluate(self, columns: Columns):
+        owner, n_sets = columns.owner, columns.n_sets
+        holds, unknown = self.condition.evaluate(columns.rows())
+        holds, unknown = np.broadcast_to(holds, owner.shape), np.broadcast_to(unknown, owner.shape)
+        share = columns.steady_column("basin", float)
+        total = np.bincount(owner, weights=np.where(holds & ~unknown, share, 0.0), minlength=n_sets)
+        missing = np.bincount(owner, weights=(unknown & (share != 0)).astype(float), minlength=n_sets)
+        return total, missing > 0

@@ -15,18 +15,20 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from poise.errors import ExpressionError
-from poise.study.claim_nodes import (Aggregate, Arithmetic, Columns, Compare, Function, Logic,
-                                     Negate, Not, Number, Parameter, SteadyColumn)
+from poise.study.claim_nodes import (Aggregate, Arithmetic, BasinShare, Columns, Compare, Function,
+                                     Logic, Negate, Not, Number, Parameter, SetValue, SteadyColumn)
 from poise.study.expressions import (check_call, check_name, literal_number,
                                      quote_source, refusal, syntax_tree)
-from poise.study.vocabulary import AGGREGATORS, STEADY_FLAGS, STEADY_NUMBERS
+from poise.study.vocabulary import (AGGREGATORS, LONG_RUN_CALLS, LONG_RUN_NAMES, RENAMED, STEADY_FLAGS,
+                                    STEADY_NUMBERS)
 
 __all__ = ["STEADY_FLAGS", "STEADY_NUMBERS", "AGGREGATORS", "Claim", "compile_claim"]
 
 _FUNCTION_ARITY = {"exp": (1, 1), "log": (1, 1), "sqrt": (1, 1), "abs": (1, 1),
                    "min": (2, None), "max": (2, None)}
 _AGGREGATOR_ARITY = {"any": (1, 1), "all": (1, 1), "none": (1, 1), "count": (0, 1)}
-_CALL_ARITY = {**_FUNCTION_ARITY, **_AGGREGATOR_ARITY}
+_LONG_RUN_ARITY = {name: (1, 1) for name in LONG_RUN_CALLS}
+_CALL_ARITY = {**_FUNCTION_ARITY, **_AGGREGATOR_ARITY, **_LONG_RUN_ARITY}
 
 _ARITHMETIC = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
 _COMPARISONS = {ast.Lt: "<", ast.LtE: "<=", ast.Gt: ">", ast.GtE: ">=",
@@ -53,6 +55,8 @@ class Claim:
     holds: str
     _program: object = field(default=None, repr=False, compare=False)
     names: frozenset = field(default=frozenset(), compare=False)   # the names it reads
+    # the words about long-run behaviour it uses (cycles, period, amplitude, reaches, basin)
+    long_run_words: frozenset = field(default=frozenset(), compare=False)
 
     def evaluate(self, steady: Mapping[str, np.ndarray], owner: np.ndarray,
                  sets: Mapping[str, np.ndarray], n_sets: int) -> np.ndarray:
@@ -67,12 +71,16 @@ class Claim:
         ----------
         steady : mapping of str to numpy.ndarray
             Columns over the steady-state rows of all sets together: each state
-            name (float), each of :data:`STEADY_FLAGS` (bool) and ``margin`` (float).
+            name (float), each of :data:`STEADY_FLAGS` (bool) and ``margin`` (float);
+            for long-run words also ``reached`` (bool: the trajectory from the initial
+            state settles there) and ``basin`` (float: share of the box starts that do).
             Only the columns the claim uses are read.
         owner : numpy.ndarray of int
             For each steady-state row, the index (0 .. n_sets-1) of its parameter set.
         sets : mapping of str to numpy.ndarray
-            Parameter name to values, each of length `n_sets`.
+            Parameter name to values, each of length `n_sets`; for long-run words also
+            ``cycles`` (bool), ``period`` and ``amplitude(<state>)`` (float, NaN
+            without an orbit).
         n_sets : int
             Number of parameter sets.
 
@@ -88,7 +96,8 @@ class Claim:
         -----
         Over a set with no steady states, ``all(...)`` and ``none(...)`` are true,
         ``any(...)`` is false and ``count(...)`` is 0. Every comparison involving
-        NaN is false, ``!=`` included.
+        NaN is false, ``!=`` included; a long-run number without an orbit (NaN) has
+        no value, which is not an error: comparisons with it are false.
         """
         if self._program is None:
             raise ValueError("this Claim was not built by compile_claim()")
@@ -198,6 +207,8 @@ class _Compiler:
             meanings.append("parameter")
         if name in STEADY_FLAGS or name in STEADY_NUMBERS:
             meanings.append("steady-state property")
+        if name in LONG_RUN_NAMES:
+            meanings.append("long-run value")
         if len(meanings) > 1:
             raise ExpressionError(
                 f"'{name}' is ambiguous here: it is both a {' and a '.join(meanings)}; "
@@ -209,6 +220,8 @@ class _Compiler:
         meaning = meanings[0]
         if meaning == "parameter":
             return Parameter(name), NUMBER
+        if meaning == "long-run value":   # one value per set, like a parameter
+            return SetValue(name, is_flag=name == "cycles"), (BOOL if name == "cycles" else NUMBER)
         if not inside:
             what = "state" if meaning == "state" else "steady-state property"
             raise ExpressionError(
@@ -220,6 +233,8 @@ class _Compiler:
 
     def call(self, node: ast.Call, inside: bool) -> tuple[object, str]:
         name = check_call(node, _CALL_ARITY, self.text)
+        if name in _LONG_RUN_ARITY:
+            return self.long_run_call(name, node, inside)
         if name in _AGGREGATOR_ARITY:
             if inside:
                 raise ExpressionError(
@@ -241,6 +256,26 @@ class _Compiler:
             args.append(arg)
         return Function(name, tuple(args)), NUMBER
 
+    def long_run_call(self, name: str, node: ast.Call, inside: bool) -> tuple[object, str]:
+        """amplitude(state): a number per set; reaches(cond) and basin(cond) range over
+        the set's steady states like an aggregator."""
+        argument = node.args[0]
+        if name == "amplitude":
+            if not (isinstance(argument, ast.Name) and argument.id in self.states):
+                raise ExpressionError(f"amplitude() takes one state name, e.g. amplitude(x), "
+                                      f"got {self.quote(argument)}")
+            return SetValue(f"amplitude({argument.id})", is_flag=False), NUMBER
+        if inside:
+            raise ExpressionError(f"{name}() ranges over the steady states itself and cannot stand "
+                                  f"inside any(), all(), none() or count(): {self.quote(node)}")
+        condition, kind = self.compile(argument, inside=True)
+        if kind != BOOL:
+            raise ExpressionError(f"{name}() needs a condition on a steady state, e.g. "
+                                  f"{name}(stable and x > 0), but {self.quote(argument)} is a number")
+        if name == "reaches":
+            return Aggregate("any", Logic("and", (SteadyColumn("reached", is_flag=True), condition))), BOOL
+        return BasinShare(condition), NUMBER
+
     def allowed(self) -> str:
         parts = []
         if self.states:
@@ -248,6 +283,7 @@ class _Compiler:
         if self.parameters:
             parts.append("parameters " + ", ".join(sorted(self.parameters)))
         parts.append("steady-state properties " + ", ".join(STEADY_FLAGS + STEADY_NUMBERS))
+        parts.append("long-run words cycles, period, amplitude(state), reaches(cond), basin(cond)")
         return "; ".join(parts)
 
 
@@ -299,7 +335,11 @@ def compile_claim(name: str, holds: str, states: Sequence[str],
         ``all(cond)``, ``none(cond)``, ``count(cond)`` and ``count()``. Inside an
         aggregator the condition may use state names, parameter names,
         :data:`STEADY_FLAGS` and ``margin``; outside, only parameters, numbers and
-        aggregator results. Aggregators do not nest.
+        aggregator results. Aggregators do not nest. Long-run words (values of a
+        whole set, from simulation): ``cycles``, ``period``, ``amplitude(state)``,
+        ``reaches(cond)`` (the trajectory from the initial state settles at a steady
+        state where `cond` holds) and ``basin(cond)`` (the share of box starts that
+        settle at such steady states).
     states, parameters : sequence of str
         The model's state and parameter names.
 
@@ -319,8 +359,11 @@ def compile_claim(name: str, holds: str, states: Sequence[str],
         tree = syntax_tree(holds)
         compiler = _Compiler(holds, states, parameters)
         known = (compiler.states | compiler.parameters | set(STEADY_FLAGS)
-                 | set(STEADY_NUMBERS) | set(_CALL_ARITY))
+                 | set(STEADY_NUMBERS) | set(LONG_RUN_NAMES) | set(_CALL_ARITY))
         used = _names_used(tree, holds)
+        renamed = sorted(used & set(RENAMED))
+        if renamed:
+            raise ExpressionError(_renamed_message(renamed[0]))
         unknown = sorted(used - known)
         if unknown:
             listed = ", ".join(f"'{item}'" for item in unknown)
@@ -339,4 +382,13 @@ def compile_claim(name: str, holds: str, states: Sequence[str],
         if hasattr(exc, "unknown_names"):
             wrapped.unknown_names = exc.unknown_names
         raise wrapped from None
-    return Claim(name, holds, program, frozenset(used - set(_CALL_ARITY)))
+    calls = {node.func.id for node in ast.walk(tree) if isinstance(node, ast.Call)}
+    long_run = (used & set(LONG_RUN_NAMES)) | (calls & set(LONG_RUN_CALLS))
+    return Claim(name, holds, program, frozenset(used - set(_CALL_ARITY)), frozenset(long_run))
+
+
+def _renamed_message(old: str) -> str:
+    new = RENAMED[old]
+    return (f"'{old}' is no longer a claim word: it meant that a steady state has complex "
+            f"eigenvalues, damped or not, and is now called '{new}'; for sustained oscillation "
+            "(a periodic orbit found by simulation) use 'cycles' with a [long_run] table")

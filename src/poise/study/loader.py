@@ -20,13 +20,16 @@ from poise.errors import ExpressionError, InputError
 from poise.sampling.distributions import check_parameter, make_distribution
 from poise.study.claims import compile_claim
 from poise.study.expressions import FUNCTIONS, parse_expression, referenced_names
+from poise.study.keys import integer as _integer, no_unknown_keys as _no_unknown_keys, table as _table
+from poise.study.longrun_keys import claims_need_long_run, initial_state, long_run_settings
 from poise.study.spec import (RunSettings, SamplingSettings, SensitivitySettings,
                               SolverSettings, Study)
 from poise.study.vocabulary import (CLAIM_WORDS, SET_COLUMNS, is_hostile_character,
-                                    is_table_column, visible)
+                                    is_table_column, state_columns, visible)
 
-TOP_LEVEL = {"title", "model", "parameters", "claims", "sampling", "sensitivity", "solver", "run"}
-MODEL_KEYS = {"states", "ode", "let", "domain", "conserved", "sbml"}
+TOP_LEVEL = {"title", "model", "parameters", "claims", "sampling", "sensitivity", "solver", "run",
+             "long_run"}
+MODEL_KEYS = {"states", "ode", "let", "domain", "conserved", "sbml", "initial"}
 RESERVED = set(FUNCTIONS) | CLAIM_WORDS
 NAME_PATTERN = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 # single-line text: names and titles (expressions may span lines)
@@ -161,7 +164,10 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         conserved[total] = _parse(combination, symbols, where, "model.conserved", total)
 
     domain = _domain(model, states, where)
+    initial = initial_state(model, states, domain, sbml_extra.get("initial", {}), where)
+    long_run = long_run_settings(data, states, domain, where)
     claims = _claims(data, states, parameter_names, where)
+    claims_need_long_run(claims, long_run, initial, where)
     used = set(conserved)
     for expr in [*ode.values(), *conserved.values()]:
         used |= {str(s) for s in expr.free_symbols}
@@ -180,8 +186,8 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         uncertain=uncertain, claims=claims,
         sampling=_sampling(data, where), sensitivity=_sensitivity(data, where),
         solver=_solver(data, where), run=_run(data, where), warnings=tuple(warnings),
-        initial=sbml_extra.get("initial", {}), units=sbml_extra.get("units", {}),
-        size=sbml_extra.get("size", {}),
+        initial=initial, units=sbml_extra.get("units", {}),
+        size=sbml_extra.get("size", {}), long_run=long_run,
     )
     return study
 
@@ -341,7 +347,7 @@ def _claims(data: dict, states, parameters, where: _Where):
         name, holds = claim.get("name"), claim.get("holds")
         if not isinstance(name, str) or not name.strip():
             raise where.error(table, "name", "expected a non-empty string")
-        if " ".join(name.split()) in SET_COLUMNS:
+        if " ".join(name.split()) in SET_COLUMNS or name.strip() in state_columns(states):
             raise where.error(table, "name", f"'{name}' names a column of the run's tables; choose another claim name")
         # names differing only in spaces would print alike in every table and figure
         if " ".join(name.split()) in seen:
@@ -408,30 +414,6 @@ def _parse(text: str, names, where: _Where, table: str, key: str) -> sympy.Expr:
             listed = ", ".join(f"'{u}'" for u in unknown)
             raise where.error(table, key, f"{listed} is used but not declared: add it to [parameters] (or [model.states])") from None
         raise where.error(table, key, str(exc)) from None
-
-
-def _table(data: dict, name: str, where: _Where, required: bool = False) -> dict:
-    if name not in data:
-        if required:
-            raise where.error(name, None, f"missing: the study needs a [{name}] table")
-        return {}
-    value = data[name]
-    if not isinstance(value, dict):
-        raise where.error(name, None, "expected a table")
-    return value
-
-
-def _no_unknown_keys(table: dict, allowed: set[str], name: str | None, where: _Where) -> None:
-    for key in table:
-        if key not in allowed:
-            raise where.error(name, key, f"unknown key; expected one of {', '.join(sorted(allowed))}")
-
-
-def _integer(table: dict, key: str, default: int, low: int, high: int, name: str, where: _Where) -> int:
-    value = table.get(key, default)
-    if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-        raise where.error(name, key, f"expected a whole number from {low} to {high}, got {value!r}")
-    return value
 
 
 def _choice(table: dict, key: str, default: str, options, name: str, where: _Where) -> str:

@@ -44,6 +44,26 @@ class RunSettings:
 
 
 @dataclass(frozen=True)
+class LongRunSettings:
+    """The ``[long_run]`` table: simulate where trajectories go (README, Long-run behaviour).
+
+    share : fraction of the parameter sets simulated (1: all); a subsample is chosen
+        by a fixed rule from the sample ids (whole Saltelli groups), never by chunk.
+    box : state -> (low, high): basin starts are drawn uniformly from this box; states
+        not listed start at their initial value.
+    box_starts : starts per set drawn from the box (0: no basin fractions).
+    max_steps : most integration steps per trajectory (the budget).
+    horizon : time horizon, in multiples of each set's slowest time scale.
+    """
+
+    share: float = 1.0
+    box: dict[str, tuple[float, float]] = field(default_factory=dict)
+    box_starts: int = 0
+    max_steps: int = 20_000
+    horizon: float = 100.0
+
+
+@dataclass(frozen=True)
 class Study:
     """A study file, validated.
 
@@ -67,10 +87,11 @@ class Study:
     solver: SolverSettings = SolverSettings()
     run: RunSettings = RunSettings()
     warnings: tuple[str, ...] = ()
-    # Only for models read from SBML: initial values, units and compartment sizes.
+    # Initial values (SBML, or [model.initial]); units and compartment sizes (SBML only).
     initial: dict[str, float] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
     size: dict[str, float] = field(default_factory=dict)
+    long_run: LongRunSettings | None = None     # None: no simulation ([long_run] absent)
 
     @property
     def parameters(self) -> tuple[str, ...]:

@@ -12,20 +12,31 @@ import re
 import unicodedata
 
 # --- words of claims ----------------------------------------------------------------
-STEADY_FLAGS = ("stable", "unstable", "undetermined", "node", "focus", "saddle", "oscillatory")
+STEADY_FLAGS = ("stable", "unstable", "undetermined", "node", "focus", "saddle", "complex_eigenvalues")
 STEADY_NUMBERS = ("margin",)
 AGGREGATORS = ("any", "all", "none", "count")
 CONSTANTS = ("inf", "nan", "pi")
-CLAIM_WORDS = frozenset(STEADY_FLAGS + STEADY_NUMBERS + AGGREGATORS + CONSTANTS)
+# long-run behaviour (simulation): values of a whole parameter set, and calls
+LONG_RUN_NAMES = ("cycles", "period")
+LONG_RUN_CALLS = ("amplitude", "reaches", "basin")
+# words that were renamed: old word -> new word (the old one is refused, naming the new)
+RENAMED = {"oscillatory": "complex_eigenvalues"}
+CLAIM_WORDS = frozenset(STEADY_FLAGS + STEADY_NUMBERS + AGGREGATORS + CONSTANTS + LONG_RUN_NAMES
+                        + LONG_RUN_CALLS + tuple(RENAMED))
 
 # --- columns of the run's tables (design.md's run directory) -------------------------
 # samples.parquet and outcomes.parquet: one row per parameter set (plus one column per
 # uncertain parameter, and per claim in outcomes.parquet)
-SET_COLUMNS = ("sample_id", "block", "independent", "status", "reason", "n_steady", "n_stable")
+SET_COLUMNS = ("sample_id", "block", "independent", "status", "reason", "n_steady", "n_stable",
+               "long_run", "long_run_reason", "cycles", "period", "n_orbits", "n_trajectories",
+               "n_undetermined")
 # equilibria.parquet: one row per steady state (plus one column per state and the
 # eigenvalue columns eig_re_<i>, eig_im_<i>)
 STEADY_STATE_COLUMNS = ("sample_id", "index", "label", "class", "stability", "margin",
-                        "oscillatory", "continuum", "trace", "determinant", "discriminant")
+                        "complex_eigenvalues", "continuum", "trace", "determinant", "discriminant",
+                        "reached", "basin", "basin_low", "basin_high")
+# per-state columns of the long-run tables: min(x), max(x), amplitude(x), start(x)
+STATE_COLUMN_WORDS = ("min", "max", "amplitude", "start")
 EIGENVALUE_COLUMN = re.compile(r"eig_(re|im)_[0-9]+")
 TABLE_COLUMNS = frozenset(SET_COLUMNS + STEADY_STATE_COLUMNS)
 
@@ -34,6 +45,12 @@ def is_table_column(name: str) -> bool:
     """Whether `name` is (or may become) a column poise puts in a run's tables; such a
     name cannot be a state or a parameter, whose values get columns of their own."""
     return name in TABLE_COLUMNS or EIGENVALUE_COLUMN.fullmatch(name) is not None
+
+
+def state_columns(states) -> frozenset:
+    """Names of the per-state columns of the long-run tables (``min(x)`` ...): a claim
+    may not take one of them as its name."""
+    return frozenset(f"{word}({state})" for word in STATE_COLUMN_WORDS for state in states)
 
 
 # --- characters ---------------------------------------------------------------------
