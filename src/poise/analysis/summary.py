@@ -26,11 +26,13 @@ def _probability(successes: int, n: int) -> dict:
 
 
 def claim_summary(outcomes: pd.DataFrame, claims: Sequence) -> dict:
-    """{claim name: {holds, probability, ci95, successes, n}} over independent ok sets."""
+    """{claim name: {holds, probability, ci95, successes, n}} over independent ok sets
+    (a long-run claim: over those simulated; a set outside the long-run subsample has
+    no answer, not a false one)."""
     usable = outcomes[outcomes["independent"] & (outcomes["status"] == "ok")]
     result = {}
     for claim in claims:
-        values = usable[claim.name].astype(bool).to_numpy()
+        values = usable[claim.name].dropna().astype(bool).to_numpy()
         successes, n = int(values.sum()), int(values.size)
         entry = {"holds": claim.holds}
         entry.update(_probability(successes, n))
@@ -72,10 +74,13 @@ def sensitivity_summary(outcomes: pd.DataFrame, claims: Sequence, names: Sequenc
         if not names or group_size <= 1:
             result[claim.name] = {"method": "none", "reason": "no uncertain parameter, or the design is not a Sobol design"}
             continue
-        ok = (outcomes["status"] == "ok").to_numpy()
+        # a group is usable when every set of it was analysed and (for a long-run claim)
+        # simulated: the subsample takes whole groups
+        ok = ((outcomes["status"] == "ok") & outcomes[claim.name].notna()).to_numpy()
         groups = ok.reshape(-1, group_size).all(axis=1)
         if not groups.any():
-            result[claim.name] = {"method": "none", "reason": "every Saltelli group holds a failed set"}
+            result[claim.name] = {"method": "none", "reason": "every Saltelli group holds a failed "
+                                                              "(or, for a long-run claim, unsimulated) set"}
             continue
         y = outcomes[claim.name].fillna(False).astype(float).to_numpy().reshape(-1, group_size)[groups].ravel()
         entry = sobol_indices(y, list(names), second_order, resamples, seed)

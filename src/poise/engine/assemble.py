@@ -92,8 +92,7 @@ def assemble(directory: Path, manifest: dict, samples: pd.DataFrame) -> tuple[pd
             equilibria_out.write(part, pandas_types=False)
             _tally(part, usable.to_numpy(zero_copy_only=False), start, presence, classes)
             if trajectories_out is not None and "trajectories" in record:
-                trajectories_out.write(pq.read_table(directory / record["trajectories"]["file"]),
-                                       pandas_types=False)
+                trajectories_out.write(pq.read_table(directory / record["trajectories"]["file"]))
             start = stop
         if start != len(samples):
             raise RuntimeError(f"the parts hold {start} sets, the design {len(samples)}")

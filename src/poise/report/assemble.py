@@ -5,6 +5,7 @@ from __future__ import annotations
 from .document import (CAUTIONS, HOW_TO_READ, Bullets, Document, FigureBlock, Heading,
                        Paragraph, TableBlock)
 from .figureset import FigureSet, state_stem
+from .longrun import SIMULATION_CAUTION, how_to_read_items, long_run_section
 from .load import RunData
 from .methods import paragraph_text
 from .references import reading_list
@@ -75,10 +76,11 @@ def assemble(run: RunData, tables: dict[str, Table], figures: FigureSet, earlier
         doc.add(Paragraph("Some data files of this run are missing, so parts of this report "
                           "could not be rebuilt: " + "; ".join(messages) + ".", kind="note"))
 
+    simulated = "long_run" in run.summary
     doc.add(Heading(2, "Before you use these results", "cautions"),
-            Bullets(CAUTIONS, kind="caution"),
+            Bullets(CAUTIONS + ([SIMULATION_CAUTION] if simulated else []), kind="caution"),
             Heading(2, "How to read this report", "how-to-read"),
-            Bullets(HOW_TO_READ))
+            Bullets(HOW_TO_READ + how_to_read_items(run)))
 
     doc.add(Heading(2, "Study", "study"), TableBlock(tables["study"]))
     if "parameters" in tables:
@@ -106,6 +108,7 @@ def assemble(run: RunData, tables: dict[str, Table], figures: FigureSet, earlier
         doc.add(Paragraph("No steady state was found in the domain for any analysed set.",
                           kind="note"))
     doc.add(*shown.blocks(state_stem(run), "No steady state to plot."))
+    long_run_section(doc, run, tables, shown)
 
     _sensitivity_section(doc, run, tables, shown)
     _regional_section(doc, run, tables, shown)

@@ -71,7 +71,13 @@ HOW_TO_READ = [
      "shows how far that share could move through sampling noise alone; more sets make it "
      "narrower. It says nothing about errors in the model itself."),
     ("Number of stable steady states:",
-     "two or more means the system can settle in different places depending on where it starts."),
+     "two or more means the system can settle in different places depending on where it starts. "
+     "Zero means that no steady state attracts: the system cannot come to rest and must go "
+     "somewhere else, for example round a periodic orbit (a limit cycle: sustained oscillation), "
+     "off to ever larger values, or into irregular motion. Linear stability cannot tell which; "
+     "the section on long-run behaviour answers it by simulating the model (with a [long_run] "
+     "table in the study file): whether a periodic orbit was found, with its period and "
+     "amplitude, or whether the trajectories grew without bound."),
     ("Steady-state label:",
      "which state variables are zero there (for example 'A>0, G=0'). Its row tells how often "
      "that steady state exists and, when it does, what kind it is."),

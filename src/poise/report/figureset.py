@@ -98,12 +98,32 @@ def draw_figures(run: RunData, regional: dict, convergence) -> FigureSet:
                      "Rightmost eigenvalue of every sampled steady state in the complex plane, "
                      "by kind (a random subset where there are very many; the legend counts "
                      "all). Left of the vertical axis the steady state is stable.")
+        _long_run_figures(run, keep, skip)
         _claim_figures(run, regional, out, keep, skip)
         if not skip("convergence", run.missing_reason("outcomes.parquet")):
             keep(convergence_figure(convergence, run.claim_names), "convergence",
                  "Running estimate of each claim's probability and its 95 % Wilson interval as "
                  "independent parameter sets are added in the order they were drawn.")
     return out
+
+
+def _long_run_figures(run: RunData, keep, skip) -> None:
+    """Spread of period and amplitude; representative time courses (runs with [long_run])."""
+    if "long_run" not in run.summary:
+        return
+    from .longrunplots import MAX_STATES_SHOWN, distributions_figure, time_courses_figure
+    if not skip("long_run_distributions", run.missing_reason("outcomes.parquet")):
+        keep(distributions_figure(run.independent_ok(), run.state_order), "long_run_distributions",
+             "Period and amplitude (largest minus smallest value on the orbit) over the independent sets "
+             "where a periodic orbit was found; the dashed line marks the median. Log bins where the "
+             "values span more than a factor of 20.")
+    if not skip("long_run_time_courses", run.missing_reason("timecourses.parquet")):
+        keep(time_courses_figure(run.timecourses, run.state_order), "long_run_time_courses",
+             "The last periods of the orbit in the sets at the 10th, 50th and 90th percentile of the "
+             "period, integrated again from the start of the trajectory that found the orbit (scipy "
+             "Radau, relative tolerance 1e-8). Each state is divided by its largest value over the "
+             f"window (given in the legend); at most {MAX_STATES_SHOWN} states are drawn, those "
+             "that swing most relative to their size.")
 
 
 def _claim_figures(run: RunData, regional: dict, out: FigureSet, keep, skip) -> None:

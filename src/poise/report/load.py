@@ -39,6 +39,7 @@ class RunData:
     equilibria: pd.DataFrame = field(default_factory=pd.DataFrame)
     outcomes: pd.DataFrame = field(default_factory=pd.DataFrame)
     missing: tuple[str, ...] = ()
+    timecourses: pd.DataFrame = field(default_factory=pd.DataFrame)   # runs with [long_run]
 
     # -- conveniences used across the report -----------------------------------
     @property
@@ -146,7 +147,7 @@ def _study_parameter_order(path: Path) -> list[str]:
 _MANIFEST_SHAPE = {"parameters": dict, "ode": dict, "conserved": dict, "states": list,
                    "claims": list, "versions": dict, "tool": dict}
 _SUMMARY_SHAPE = {"claims": dict, "stable_count": dict, "equilibria": dict,
-                  "sensitivity": dict, "samples": dict, "solver": dict, "tool": dict}
+                  "sensitivity": dict, "samples": dict, "solver": dict, "tool": dict, "long_run": dict}
 
 
 def _check_shape(path: Path, data: dict, shape: dict) -> None:
@@ -233,6 +234,8 @@ def load_run(run_dir: str | Path) -> RunData:
     if outcomes is not None and not {"sample_id", "status", "independent"} <= set(outcomes.columns):
         raise InputError("outcomes.parquet lacks the columns sample_id, status and independent; "
                          "run the study again to rebuild it", file=str(run_dir / "outcomes.parquet"))
+    if "long_run" in summary:   # the time courses of the long-run section
+        tables["timecourses"] = _read_parquet(run_dir / "timecourses.parquet")
     missing = tuple(f"{name}.parquet" for name, frame in tables.items() if frame is None)
     frames = {name: pd.DataFrame() if frame is None else frame for name, frame in tables.items()}
     return RunData(run_dir=run_dir, manifest=manifest, summary=summary, missing=missing, **frames)

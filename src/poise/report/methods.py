@@ -225,7 +225,9 @@ def _software_paragraph(run: RunData) -> list:
 
 def methods_paragraphs(run: RunData) -> list[list]:
     """The Methods text: paragraphs of strings and `Cite` pieces."""
-    return [_design_paragraph(run), _finder_paragraph(run), [_CLASSIFY],
+    from .longrun import methods_paragraph
+    simulation = methods_paragraph(run, lambda keys: Cite(keys))
+    return [_design_paragraph(run), _finder_paragraph(run), [_CLASSIFY], *([simulation] if simulation else []),
             *_statistics_paragraphs(run), _software_paragraph(run)]
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from . import content, sensitivity
+from . import content, longrun, sensitivity
 from .assemble import assemble
 from .convergence import convergence_frame
 from .figureset import FigureSet, draw_figures
@@ -40,6 +40,7 @@ def _build_tables(run: RunData, regional: dict) -> dict[str, Table]:
         "sobol": sensitivity.sobol_table(run),
         "priorities": sensitivity.priority_table(run),
         "regional": sensitivity.regional_table(run, regional),
+        **longrun.long_run_tables(run),
     }
     return {name: table for name, table in built.items() if table is not None}
 
@@ -167,7 +168,7 @@ def write_report(run_dir: str | Path, notes: list[str] | None = None) -> list[Pa
 
 # files poise writes under figures/ and tables/ that depend on the claims; other files
 # there are the user's and are left alone
-_OWN_FIGURE = re.compile(r"(claims|stable_count|convergence|steady_states_[a-z_]+|"
+_OWN_FIGURE = re.compile(r"(claims|stable_count|convergence|steady_states_[a-z_]+|long_run_[a-z_]+|"
                          r"(sobol|factor_map|probability_map)_claim\d+)\.(png|svg)")
 
 
