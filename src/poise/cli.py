@@ -162,7 +162,11 @@ def _check(args) -> int:
     study = load_study(args.study)
     _warn(study.warnings)
     description = describe_model(study)
-    note = spread_note(study, compile_model(study))
+    model = compile_model(study)
+    if study.long_run is not None:   # a box must suit the conserved totals, as `poise run` checks
+        from poise.longrun.pipeline import check_long_run
+        check_long_run(study, model)
+    note = spread_note(study, model)
     _warn((note,) if note else ())
     print(json.dumps(description, indent=2) if args.json else describe_text(study, description))
     return 0
