@@ -416,7 +416,11 @@ def test_rate_rule_makes_a_parameter_a_state_and_boundary_species_is_fixed(tmp_p
     X, w, k, Feed = sympy.symbols("X w k Feed")
     assert sympy.simplify(odes["w"] + k * w) == 0
     assert sympy.simplify(odes["X"] - w * Feed) == 0
-    assert data.units == {"X": "concentration"} and data.conserved == {}
+    assert data.units == {"X": "concentration"}
+    # reference, by hand: d/dt (X + (Feed/k)*w) = Feed*w - Feed*w = 0, and Feed/k = 10 at the
+    # file's values; the law needs those two values, so a study that varies either drops it
+    assert data.conserved == {"X_total": "X + 10*w"}
+    assert data.conserved_requires == {"X_total": ("Feed", "k")}
 
 
 def test_events_are_ignored_with_a_warning(tmp_path):

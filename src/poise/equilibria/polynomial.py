@@ -74,7 +74,7 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
     PolynomialSystem or None
         ``None`` when some equation is not a rational function of the states after
         clearing denominators (``exp(x)``, ``x**0.5``, ``x**n`` with symbolic ``n``,
-        ``abs``, ``min``/``max`` of states), and also when an equation vanishes
+        ``abs``, ``min``/``max`` of states, any ``piecewise``), and also when an equation vanishes
         identically (its steady states are not isolated, so no root count exists).
 
     Raises
@@ -94,6 +94,8 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
     if len(equations) != len(states):
         raise ValueError(f"{len(equations)} equations for {len(states)} states")
     allowed = set(states) | set(params)
+    if any(isinstance(e, sympy.Basic) and e.has(sympy.Piecewise) for e in equations):
+        return None  # piecewise: each piece smooth, the whole not one polynomial (Newton's job)
 
     numerators: list[sympy.Expr] = []
     degrees: list[int] = []

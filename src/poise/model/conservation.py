@@ -56,11 +56,12 @@ class LawProbe:
                                                                      dtype=np.int64)
         self.values = values[:, ~self.evaluator.bad, :]  # (primes, points, states)
 
-    def laws(self) -> list[dict[str, sympy.Rational]]:
+    def laws(self, tidy: bool = True) -> list[dict[str, sympy.Rational]]:
         """A basis of the conservation laws, each {state: exact coefficient}.
 
-        The basis is the one sympy's ``nullspace`` would give (each law has a state of
-        its own, the last of its states in column order); each law is scaled to
+        With `tidy`, each law is simplified towards non-negative coefficients on few
+        states (a total amount); without, the basis is the one sympy's ``nullspace``
+        would give (each law has a state of its own). Each law is scaled to
         coprime whole numbers with its first coefficient positive when that keeps them
         at most `MAX_INTEGER_COEFFICIENT`, else to a first coefficient of 1.
         """
@@ -85,7 +86,7 @@ class LawProbe:
                 vectors.append(vector)
         laws = []
         fresh = None
-        for law in _tidy(vectors):
+        for law in _tidy(vectors) if tidy else vectors:
             law = _normalised(law)
             # checked at new points: guards against a wrongly reconstructed rational
             fresh = fresh or LawProbe(self.ode, self.states, seed=_fresh_seed(self.evaluator))
@@ -109,35 +110,47 @@ def _fresh_seed(evaluator: Evaluator) -> int:
     return int(evaluator.rng.integers(1, 2**31))
 
 
-def _score(vector: list[Fraction]) -> tuple[int, int]:
-    """Fewer negative coefficients, then fewer states: a law a reader recognises
-    (a total amount of enzyme, of substrate) rather than a difference of them."""
-    first = next((c for c in vector if c != 0), 1)
-    negative = sum(1 for c in vector if c * first < 0)
-    return (min(negative, sum(1 for c in vector if c != 0) - negative), sum(1 for c in vector if c != 0))
+def _score(vector: list[int]) -> tuple[int, int]:
+    """Fewer coefficients of the minority sign, then fewer states: a law a reader
+    recognises (a total amount of enzyme, of substrate) rather than a difference."""
+    positive = sum(1 for c in vector if c > 0)
+    negative = sum(1 for c in vector if c < 0)
+    return (min(positive, negative), positive + negative)
+
+
+def _primitive(vector: list[int]) -> list[int]:
+    from math import gcd
+    divisor = 0
+    for c in vector:
+        divisor = gcd(divisor, c)
+    return [c // divisor for c in vector] if divisor > 1 else vector
 
 
 def _tidy(basis: list[list[Fraction]], rounds: int = 20) -> list[list[Fraction]]:
-    """The same space of laws, with each law simplified by adding multiples of the
-    others while that lowers its `_score` (each law keeps coefficient 1 on itself,
-    so the laws stay independent)."""
-    basis = [list(v) for v in basis]
+    """The same space of laws, each law simplified by adding multiples of the others
+    while that lowers its `_score` (a law keeps a non-zero multiple of itself, so the
+    laws stay independent). Whole-number arithmetic: it runs on every import."""
+    from math import lcm
+    vectors = [_primitive([int(c * lcm(*[x.denominator for x in v])) for c in v]) for v in basis]
+    scores = [_score(v) for v in vectors]
     for _ in range(rounds):
         changed = False
-        for i, v in enumerate(basis):
-            for j, w in enumerate(basis):
+        for i in range(len(vectors)):
+            for j in range(len(vectors)):
                 if i == j:
                     continue
-                factors = {Fraction(1), Fraction(-1)}
-                factors |= {a / b for a, b in zip(v, w) if a != 0 and b != 0}
-                for factor in factors:
-                    candidate = [a - factor * b for a, b in zip(v, w)]
-                    if any(candidate) and _score(candidate) < _score(v):
-                        basis[i] = v = candidate
+                v, w = vectors[i], vectors[j]
+                candidates = [[a + b for a, b in zip(v, w)], [a - b for a, b in zip(v, w)]]
+                candidates += [[b_k * a - a_k * b for a, b in zip(v, w)]
+                               for a_k, b_k in {(a, b) for a, b in zip(v, w) if a and b}]
+                for candidate in candidates:
+                    score = _score(candidate)
+                    if score[1] and score < scores[i]:
+                        vectors[i], scores[i], v = _primitive(candidate), score, candidate
                         changed = True
         if not changed:
             break
-    return basis
+    return [[Fraction(c) for c in v] for v in vectors]
 
 
 def _normalised(vector: list[Fraction]) -> list[Fraction]:
@@ -222,17 +235,21 @@ def _residue(number: sympy.Expr, prime: int) -> int:
 
 
 def extra_laws(declared: Mapping[str, sympy.Expr], derived: Mapping[str, sympy.Expr],
-               states: Sequence[str]) -> list[str]:
-    """The derived laws (total name -> combination) that the declared ones do not imply.
+               states: Sequence[str], requires: Mapping[str, Sequence[str]] | None = None,
+               varying: Sequence[str] = ()) -> list[str]:
+    """The derived laws (total name -> combination) to add to the declared ones.
 
     A user's declarations and the laws derived from an SBML file combine: declared
     ones come first; a derived law is kept unless it is a combination of those
-    before it. Combinations that are not linear in the states are kept (the check
-    of the study reports them).
+    before it, or it holds only at the values of parameters (`requires`) that vary.
+    Combinations that are not linear in the states are kept (the check of the
+    study reports them).
     """
     vectors = [v for v in (law_vector(c, states) for c in declared.values()) if v is not None]
     kept = []
     for total, combination in derived.items():
+        if set((requires or {}).get(total, ())) & set(varying):
+            continue
         vector = law_vector(combination, states)
         if vector is None or not spans(vectors, vector):
             kept.append(total)

@@ -113,14 +113,14 @@ def _checked_laws(study: Study, fixed: dict[str, float], varying: tuple[str, ...
         declared.append(vector)
     # laws for any parameter values: a law that only particular fixed values make (r = 0
     # in x' = r*x) may be declared, but is not demanded
-    for law in LawProbe(study.ode, states).laws():
-        vector = [law.get(s, 0) for s in states]
-        if not spans(declared, vector):
-            name = ("_".join(law) if len(law) <= 4 else "_".join(list(law)[:3]) + "_etc") + "_total"
-            raise InputError(
-                f"the model conserves {format_law(law)}, so its steady states form continua unless the total is fixed; "
-                f"add the line  {name} = \"{format_law(law)}\"  and give {name} a value in [parameters]",
-                key=name, **where)
+    generic = LawProbe(study.ode, states)
+    if not all(spans(declared, [law.get(s, 0) for s in states]) for law in generic.laws(tidy=False)):
+        law = next(law for law in generic.laws() if not spans(declared, [law.get(s, 0) for s in states]))
+        name = ("_".join(law) if len(law) <= 4 else "_".join(list(law)[:3]) + "_etc") + "_total"
+        raise InputError(
+            f"the model conserves {format_law(law)}, so its steady states form continua unless the total is fixed; "
+            f"add the line  {name} = \"{format_law(law)}\"  and give {name} a value in [parameters]",
+            key=name, **where)
     return tuple(tuple((s, c) for s, c in zip(states, v)) for v in declared)
 
 

@@ -27,7 +27,11 @@ class SbmlModel:
         by nothing; ``<species>_amount`` for the fixed amount of a species in a
         compartment whose size changes), compartment sizes and conservation totals.
     conserved : dict
-        total name -> linear combination of states that the reactions conserve.
+        total name -> linear combination of states that the model conserves (with
+        every parameter at its value).
+    conserved_requires : dict
+        total name -> the parameters that law holds only at their values; a study
+        that makes one of them uncertain drops the law.
     initial : dict
         state -> initial value, in the state's own units.
     units : dict
@@ -54,6 +58,7 @@ class SbmlModel:
     units: dict[str, str]
     size: dict[str, float]
     let: dict[str, str] = field(default_factory=dict)
+    conserved_requires: dict[str, tuple[str, ...]] = field(default_factory=dict)
     domain: dict[str, tuple[float, float]] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     outputs: dict[str, str] = field(default_factory=dict)

@@ -82,7 +82,7 @@ class _Builder:
         ode = self._odes()
         lets = dependency_order(self.definitions, sorted(_symbols(ode.values()), key=str), self.origin)
         self._refuse_what_equations_cannot_use(ode, lets)
-        conserved, totals = self._conservation(ode)
+        conserved, totals, requires = self._conservation(ode)
         let_symbols = set(lets)
         lets_math = {s: self.definitions[s] for s in lets}
         used = _symbols([*ode.values(), *lets_math.values()]) - self.state_symbols - let_symbols
@@ -104,6 +104,7 @@ class _Builder:
             let={s.name: self._text(lets_math[s], self.origin[s]) for s in lets},
             parameters=parameters,
             conserved=conserved,
+            conserved_requires=requires,
             initial={self.name[s]: self._value(self.sym[s]) for s in self.states},
             units={self.name[s]: "amount" if self.e.in_amounts(s) else "concentration"
                    for s in species_states},
@@ -431,21 +432,16 @@ class _Builder:
 
     # --- conservation and outputs ----------------------------------------------
 
-    def _conservation(self, ode: dict) -> tuple[dict[str, str], dict[str, float]]:
-        constant = {self.sym[c] for c in self.e.compartments
-                    if c not in self.varying and not self.e.zero_dimensional(c)}
-        sizes = {}
-        for symbol in constant:
+    def _conservation(self, ode: dict) -> tuple[dict[str, str], dict[str, float], dict]:
+        inlined = {s: self.inline(expr) for s, expr in ode.items()}
+        values = {}
+        for symbol in _symbols(inlined.values()) - self.state_symbols:
             try:
-                sizes[symbol] = self._value(symbol)
+                values[symbol] = self._value(symbol)
             except SbmlProblem:
-                continue  # a size without value fails later, where it is used
-        # inline everything but the sizes, which become numbers (the laws' coefficients)
-        resolved = inline_all({s: e for s, e in self.definitions.items() if s not in sizes}, self.origin)
-        inlined = {s: expr.xreplace({d: resolved[d] for d in expr.free_symbols if d in resolved})
-                   for s, expr in ode.items()}
+                pass  # a symbol without value fails where it is used
         states = [self.sym[s] for s in self.states]
-        return conservation_laws(inlined, states, sizes, self._value, self._fresh)
+        return conservation_laws(inlined, states, values, self._value, self._fresh)
 
     def _outputs(self, known: set) -> dict[str, str]:
         """SBML id -> value in terms of states and parameters (for comparing with simulations)."""

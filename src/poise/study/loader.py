@@ -126,7 +126,7 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         conserved[total] = _parse(combination, symbols, where, "model.conserved", total)
     # laws derived from an SBML file join the declared ones, unless these already imply them
     derived = {t: _parse(c, symbols, where, "model.conserved", t) for t, c in sbml_extra.get("conserved", {}).items()}
-    kept = extra_laws(conserved, derived, states)
+    kept = extra_laws(conserved, derived, states, sbml_extra.get("requires"), list(uncertain))
     for total in derived:
         if total in kept and total not in conserved:
             conserved[total] = derived[total]
@@ -264,7 +264,8 @@ def _from_sbml(path: Path, model: dict, where: _Where, warnings: list[str]):
     warnings.extend(imported.warnings)
     extra = {"initial": dict(imported.initial), "units": dict(imported.units),
              "size": dict(imported.size), "conserved": dict(imported.conserved),
-             "let": dict(imported.let), "domain": dict(imported.domain)}
+             "let": dict(imported.let), "domain": dict(imported.domain),
+             "requires": dict(imported.conserved_requires)}
     return list(imported.states), dict(imported.ode), dict(imported.parameters), extra
 
 
