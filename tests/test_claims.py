@@ -285,3 +285,74 @@ def test_hostile_claims_are_refused_and_run_nothing(tmp_path):
             compile_claim("c", text, STATES, PARAMETERS)
         assert time.perf_counter() - start < 30, text[:60]  # a hang guard, not a timing test
         assert not marker.exists()
+
+
+# --- claims that divide by zero: an error in that set, not an answer ---------------------
+#
+# Reference: per set, plain Python with None for "undefined": a quotient with a zero
+# divisor has no value (IEEE 754 would give ±inf or NaN, which a claim must not read
+# as true or false), and and/or/not/any/all follow Kleene's strong three-valued logic
+# (Kleene 1952, Introduction to Metamathematics, §64): "false and ?" is false, "true
+# or ?" is true, any() with one sure true row is true, all() with one sure false row
+# is false; otherwise an undefined part leaves the whole undefined.
+
+def _div(a, b):
+    return None if a is None or b is None or b == 0 else a / b
+
+
+def _cmp(a, b, holds):
+    return None if a is None or b is None else holds(a, b)
+
+
+def _and(*values):
+    return False if False in values else (None if None in values else True)
+
+
+def _or(*values):
+    return True if True in values else (None if None in values else False)
+
+
+def _any(values):
+    return _or(False, *values)
+
+
+def _all(values):
+    return _and(True, *values)
+
+
+UNDEFINED_CASES = [
+    ("count()/0 > 1", lambda rows, p: _cmp(_div(len(rows), 0), 1, float.__gt__)),
+    ("count(stable)/count() > 0.5",
+     lambda rows, p: _cmp(_div(float(sum(r["stable"] for r in rows)), len(rows)), 0.5, float.__gt__)),
+    ("any(A/G > 1)", lambda rows, p: _any([_cmp(_div(r["A"], r["G"]), 1.0, float.__gt__) for r in rows])),
+    ("any(G > 0 and A/G > 1)",
+     lambda rows, p: _any([_and(r["G"] > 0, _cmp(_div(r["A"], r["G"]), 1.0, float.__gt__)) for r in rows])),
+    ("all(G == 0 or A/G < 2)",
+     lambda rows, p: _all([_or(r["G"] == 0, _cmp(_div(r["A"], r["G"]), 2.0, float.__lt__)) for r in rows])),
+    ("k1/(K - K) > 0 or count() >= 0", lambda rows, p: _or(_cmp(_div(p["k1"], 0.0), 0, float.__gt__), True)),
+    ("not (1/(k1 - k1) > 0) and any(stable)",
+     lambda rows, p: _and(None, _any([r["stable"] for r in rows]))),
+    ("count(A/G > 1) >= 1", lambda rows, p: (None if any(r["G"] == 0 for r in rows)
+                                             else sum(r["A"] / r["G"] > 1 for r in rows) >= 1)),
+]
+
+
+@pytest.mark.parametrize("text, statement", UNDEFINED_CASES, ids=[t for t, _ in UNDEFINED_CASES])
+def test_division_by_zero_makes_a_set_undefined_as_three_valued_logic_says(text, statement):
+    rng = np.random.default_rng(14)
+    steady, owner, sets, n_sets = _random_table(rng, n_sets=400)
+    steady["A"] = np.where(np.isnan(steady["A"]), 1.0, steady["A"])
+    steady["G"][rng.random(owner.size) < 0.3] = 0.0       # many exact zeros to divide by
+    grouped, params = _per_set(steady, owner, sets, n_sets)
+    expected = [statement(rows, p) for rows, p in zip(grouped, params)]
+    holds, undefined = compile_claim("c", text, STATES, PARAMETERS).evaluate_sets(steady, owner, sets, n_sets)
+    np.testing.assert_array_equal(undefined, [value is None for value in expected])
+    defined = ~undefined
+    np.testing.assert_array_equal(holds[defined], [value for value in expected if value is not None])
+    guarded = text.startswith(("k1/", "any(G > 0", "all(G == 0"))   # the logic settles these
+    assert undefined.any() != guarded
+
+
+def test_claims_record_the_names_they_read():
+    claim = compile_claim("c", "any(stable and G > k1) and count() > K", STATES, PARAMETERS)
+    assert claim.names == {"stable", "G", "k1", "K"}

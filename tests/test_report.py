@@ -230,14 +230,17 @@ def test_every_file_written_and_readable(nasty_run):
                      "figures/claims.png", "figures/claims.svg", "figures/convergence.png",
                      "figures/steady_states_trace_determinant.png", "figures/sobol_claim01.png",
                      "figures/sobol_claim02.svg", "figures/factor_map_claim01.png",
-                     "figures/factor_map_claim02.png", "figures/stable_count.png"]:
+                     "figures/factor_map_claim02.png", "figures/stable_count.png",
+                     "figures/probability_map_claim01.png", "figures/probability_map_claim02.svg",
+                     "tables/probability_map_claim01.csv", "tables/parameters.tex",
+                     "methods.tex", "references.bib"]:
         assert expected in names
     for path in written:
         assert path.is_file() and path.stat().st_size > 0, path
         if path.suffix == ".png":
             image = matplotlib.image.imread(path)
             assert image.ndim == 3 and image.shape[0] > 100 and image.shape[1] > 100
-        if path.suffix == ".tex":
+        if path.suffix == ".tex" and path.parent.name == "tables":
             text = path.read_text(encoding="utf-8")
             assert _latex_balanced(text), path
             assert "\\toprule" in text and "\\bottomrule" in text
@@ -297,12 +300,16 @@ def test_user_text_escaped_in_html(nasty_run):
 def test_user_text_escaped_in_markdown(nasty_run):
     root, _ = nasty_run
     text = (root / "report.md").read_text(encoding="utf-8")
-    assert "<script>" not in text and "<" not in text.replace("&lt;", "")
-    assert "&lt;script&gt;alert(1)&lt;/script&gt; &amp; 100% \\\\LaTeX\\_x" in text
+    # source: CommonMark spec 0.31.2, 2.4 (a backslash before ASCII punctuation shows it
+    # literally), 2.5 (entity references start with "&" and a letter or "#"), 6.6 (raw
+    # HTML starts with "<" and a tag name): no unescaped tag, and no HTML entity at all
+    assert not re.search(r"(?<!\\)<[A-Za-z/!?]", text)
+    assert not re.search(r"&(#[0-9]+|#x[0-9a-fA-F]+|[A-Za-z][A-Za-z0-9]*);", text)
+    assert "\\<script>alert(1)\\</script> & 100% \\\\LaTeX_x" in text
     # The claim's row in the claims table keeps its cell count: every | in the name is escaped.
     table = text.split("**How probable each claim is**")[1].split("\n\n")[1].splitlines()
     header_cells = len(re.findall(r"(?<!\\)\|", table[0]))
-    nasty_rows = [row for row in table[2:] if "&lt;&gt;&amp;" in row]
+    nasty_rows = [row for row in table[2:] if "\\|\\*\\_" in row]
     assert len(nasty_rows) == 1
     assert len(re.findall(r"(?<!\\)\|", nasty_rows[0])) == header_cells
 
@@ -317,8 +324,10 @@ def test_user_text_escaped_in_latex(nasty_run):
             r"\textasciicircum{}\textbackslash{}") in claims
     for path in (root / "tables").glob("*.tex"):
         body = path.read_text(encoding="utf-8").split("\n", 1)[1]   # first line is a comment
-        assert not re.search(r"(?<!\\)[%$#_]", body), path
-        assert "~" not in body and "^" not in body, path
+        # formulas are in math mode ($...$, from sympy's printer); everything else is text
+        text_parts = re.sub(r"\$[^$]*\$", "", body.replace(r"\$", ""))
+        assert not re.search(r"(?<!\\)[%#_]", text_parts), path
+        assert "~" not in text_parts and "^" not in text_parts, path
 
 
 # -- determinism --------------------------------------------------------------------
@@ -403,8 +412,9 @@ def test_report_content(nasty_run):
         assert "reasons are listed under Study" in text
     priorities = pd.read_csv(root / "tables" / "priorities.csv")
     persist = priorities[priorities["Claim"] == PLAIN_CLAIM]
-    assert list(persist["Parameter"]) == ["K", "c", "s"]   # ranked by S1
-    assert "nominal value" in persist.iloc[2]["Reading"]   # ST 0.004 < 0.01
+    assert list(persist["Parameter"]) == ["K", "c", "s"]   # ranked by ST
+    assert list(persist["Rank alone (S1)"]) == [1, 2, 3]
+    assert "nominal value (1)" in persist.iloc[2]["Reading"]   # ST 0.004 < 0.01
     sobol = pd.read_csv(root / "tables" / "sobol.csv")
     flagged = sobol[sobol["Note"] == "more samples needed"]
     assert set(zip(flagged["Claim"], flagged["Parameter"])) == {(NASTY_CLAIM, "c")}
@@ -461,14 +471,20 @@ def test_latex_row_cannot_start_an_optional_argument():
     ("- not a list", "\\- not a list"),
     ("1. not a list", "1\\. not a list"),
     ("---", "\\---"),
+    ("> not a quote", "\\> not a quote"),
     ("-A + K", "-A + K"),           # no list: the marker must be followed by a space
     ("0.308", "0.308"),
-    ("[a](javascript:x)", "\\[a\\](javascript:x)"),
+    ("[a](javascript:x)", "[a\\](javascript:x)"),
+    ("[0.059, 0.081]", "[0.059, 0.081]"),   # no link without "](", "][" or "]:"
     ("a|b", "a\\|b"),
+    ("u > v & x < 2", "u > v & x < 2"),     # cannot start markup: stays readable
+    ("<b>&amp;", "\\<b>\\&amp;"),
+    ("top_u _x_", "top_u \\_x\\_"),     # "_" between letters never makes emphasis
 ])
 def test_markdown_escape_blocks_structure(text, rendered):
-    # source: CommonMark spec 0.31.2, sections 2.4 (backslash escapes), 4.1 (thematic
-    # breaks), 5.2 (list items need a space after the marker), 6.3 (links)
+    # source: CommonMark spec 0.31.2, sections 2.4 (backslash escapes), 2.5 (entity
+    # references), 4.1 (thematic breaks), 5.1 (block quotes), 5.2 (list items need a space
+    # after the marker), 6.2 (emphasis: flanking rules), 6.3 (links), 6.6 (raw HTML)
     from poise.report.escape import escape_markdown
     assert escape_markdown(text) == rendered
 

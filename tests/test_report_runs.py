@@ -65,3 +65,25 @@ def test_report_command_rebuilds_the_same_files_without_recomputing(runs):
         assert p.read_bytes() == content, p
     assert parts == {p: p.stat().st_mtime_ns for p in (directory / "parts").iterdir()}
     assert data == {p: p.stat().st_mtime_ns for p in directory.glob("*.parquet")}
+
+
+def test_toggle_switch_tables_typeset_its_equations_with_sympy(runs):
+    import sympy
+
+    directory = runs["toggle_switch"]
+    u, v, n, leak, decay, top_u, top_v, Ku, Kv = sympy.symbols("u v n leak decay top_u top_v Ku Kv")
+    # configs/toggle_switch.toml written out by hand: make_u - decay*u with
+    # hill(v, Kv, n) = v**n/(Kv**n + v**n); reference: sympy's LaTeX printer
+    expected = {u: leak + top_u * (1 - v**n / (Kv**n + v**n)) - decay * u,
+                v: leak + top_v * (1 - u**n / (Ku**n + u**n)) - decay * v}
+    lines = (directory / "tables" / "study.tex").read_text().splitlines()
+    for state, expr in expected.items():
+        label = "$" + sympy.latex(sympy.Derivative(state, sympy.Symbol("t"))) + "$"
+        assert f"{label} & ${sympy.latex(expr)}$ \\\\" in lines
+    # parameters in the study file's order, values as written there
+    import pandas as pd
+    table = pd.read_csv(directory / "tables" / "parameters.csv")
+    assert list(table["Parameter"]) == ["n", "leak", "decay", "top_u", "top_v", "Ku", "Kv"]
+    assert "fixed at 0.05" in set(table["Distribution"])
+    for name in ("methods.tex", "references.bib", "figures/probability_map_claim01.png"):
+        assert (directory / name).stat().st_size > 0, name

@@ -213,3 +213,28 @@ def test_cli_run_prints_the_main_table_and_honours_size_and_seed(tmp_path):
     manifest = json.loads((tmp_path / "cli" / "manifest.json").read_text())
     assert manifest["size"] == 16 and manifest["seed"] == 3
     assert (tmp_path / "cli" / "report.html").exists()
+
+
+def test_a_claim_that_divides_by_zero_fails_its_sets_instead_of_holding(tmp_path):
+    # count()/0 is not a number (IEEE 754 gives inf, or NaN for 0/0): before, "inf > 1"
+    # made the claim silently true in every set.
+    text = REEF.replace('holds = "any(stable and G > 1e-9)"', 'holds = "count()/0 > 1"').replace(
+        'design = "sobol"', 'design = "random"').replace('method = "sobol"', 'method = "none"')
+    study = load_study(write_study(tmp_path, text.replace("size = 64", "size = 8")))
+    result = run_study(study, tmp_path / "run", jobs=1, report=False)
+    claim = result.summary["claims"]["grazers persist stably"]
+    assert claim["probability"] is None and claim["n"] == 0
+    assert (result.samples["status"] == "failed").all()
+    assert result.samples["reason"].str.contains("claim 'grazers persist stably' is undefined").all()
+    status, out, err = run_cli("inspect", str(study.path))   # the steady states are still shown
+    assert status == 0 and "steady states in the domain" in out
+
+
+def test_a_guarded_division_leaves_every_set_analysed(tmp_path):
+    # the extinction state (A, G) = (0, 0) exists in every set (closed form): A/G is
+    # undefined there, but "G > 0 and ..." settles it as false (three-valued logic)
+    text = REEF.replace('holds = "any(stable and G > 1e-9)"', 'holds = "any(G > 0 and A/G > 0.1)"')
+    study = load_study(write_study(tmp_path, text))
+    result = run_study(study, tmp_path / "run", jobs=1, report=False)
+    assert (result.samples["status"] == "ok").all()
+    assert result.summary["claims"]["grazers persist stably"]["n"] == 128

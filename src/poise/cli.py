@@ -10,9 +10,10 @@ import argparse
 import json
 import math
 import sys
-from pathlib import Path
+import warnings
 
-from poise.errors import InputError
+from poise.errors import InputError, PoiseWarning
+from poise.study.vocabulary import visible
 
 
 class _Parser(argparse.ArgumentParser):
@@ -32,18 +33,20 @@ def build_parser() -> argparse.ArgumentParser:
 
     inspect = commands.add_parser("inspect", help="every steady state at one parameter point")
     inspect.add_argument("study")
-    inspect.add_argument("--at", action="append", default=[], metavar="NAME=VALUE",
-                         help="set a parameter (fixed or uncertain); repeat for several")
+    inspect.add_argument("--at", action="extend", nargs="+", default=[], metavar="NAME=VALUE",
+                         help="set parameters (fixed or uncertain), e.g. --at a=1 b=2")
     inspect.add_argument("--json", action="store_true")
 
     run = commands.add_parser("run", help="the whole uncertainty study")
     run.add_argument("study")
     run.add_argument("--out", help="run directory (default: reports/<study file stem>/)")
     run.add_argument("--size", type=_positive_int, help="base sample size N (overrides [sampling] size)")
-    run.add_argument("--seed", type=_non_negative_int, help="overrides [sampling] seed")
+    run.add_argument("--seed", type=_seed, help="overrides [sampling] seed")
     run.add_argument("--jobs", type=_non_negative_int, help="worker processes; 0 = all cores")
     run.add_argument("--scheduler", help="address of a Dask scheduler, e.g. tcp://10.0.0.5:8786")
     run.add_argument("--resume", action="store_true", help="continue an unfinished run in --out")
+    run.add_argument("--overwrite", action="store_true",
+                     help="replace a run of a different study or settings in --out")
     run.add_argument("--quiet", action="store_true", help="no progress on stderr")
 
     report = commands.add_parser("report", help="rebuild the report of a finished run")
@@ -55,16 +58,63 @@ def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     restore = _quiet_threads_after_interrupt()
     try:
-        handler = {"check": _check, "inspect": _inspect, "run": _run, "report": _report}[args.command]
-        return handler(args)
+        with warnings.catch_warnings():
+            _one_line_warnings()
+            handler = {"check": _check, "inspect": _inspect, "run": _run, "report": _report}[args.command]
+            return handler(args)
     except InputError as exc:
         print(f"poise: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("poise: interrupted", file=sys.stderr)
         return 130
+    except RecursionError:   # only input nested far beyond any real model gets here
+        print(f"poise: {args.command}: the input is nested too deeply to read", file=sys.stderr)
+        return 2
+    except MemoryError:
+        print("poise: out of memory; choose a smaller size (--size) or fewer [sensitivity] "
+              "resamples, or use a machine with more memory", file=sys.stderr)
+        return 1
+    except BrokenPipeError:   # the reader of our output left (e.g. `| head`): nothing to say
+        _silence_stdout()
+        return 1
+    except OSError as exc:   # disk full, a folder that became read-only, ...
+        hint = ("; what was finished is saved: run the same command again to continue"
+                if args.command == "run" else "")
+        print(f"poise: {_os_error(exc)}{hint}", file=sys.stderr)
+        return 1
     finally:
         restore()
+
+
+def _silence_stdout() -> None:
+    """Send what is left in stdout's buffer nowhere, so that exiting prints no error."""
+    import os
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, sys.stdout.fileno())
+
+
+def _os_error(exc: OSError) -> str:
+    """One line for an error of the system: what failed and where."""
+    what = exc.strerror or str(exc) or type(exc).__name__
+    where = f": {exc.filename}" if exc.filename else ""
+    return visible(f"{what}{where}")
+
+
+def _one_line_warnings() -> None:
+    """poise's own warnings as one line on stderr; scipy's note on the balance of Sobol'
+    points for sizes that are not powers of 2 is expected here and not shown."""
+    from poise.errors import quiet_sobol_balance
+    quiet_sobol_balance()
+    default = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        if issubclass(category, PoiseWarning):
+            print(f"poise: warning: {visible(str(message))}", file=sys.stderr)
+        else:
+            default(message, category, filename, lineno, file, line)
+
+    warnings.showwarning = show
 
 
 def _quiet_threads_after_interrupt():
@@ -155,9 +205,9 @@ def _assignments(items: list[str], study) -> dict[str, float]:
     return values
 
 
-def _warn(warnings) -> None:
-    for warning in warnings:
-        print(f"poise: warning: {warning}", file=sys.stderr)
+def _warn(messages) -> None:
+    for message in messages:
+        print(f"poise: warning: {visible(str(message))}", file=sys.stderr)
 
 
 def _positive_int(text: str) -> int:
@@ -165,6 +215,14 @@ def _positive_int(text: str) -> int:
     value = _non_negative_int(text)
     if not 1 <= value <= MAX_SIZE:
         raise argparse.ArgumentTypeError(f"expected a whole number from 1 to {MAX_SIZE}")
+    return value
+
+
+def _seed(text: str) -> int:
+    from poise.study.loader import MAX_SEED
+    value = _non_negative_int(text)
+    if value > MAX_SEED:
+        raise argparse.ArgumentTypeError(f"expected a whole number from 0 to {MAX_SEED}")
     return value
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from poise.study.expressions import to_text
 from poise.study.spec import Study
+from poise.study.vocabulary import visible
 
 
 def parameter_sets(study: Study, size: int | None = None) -> int:
@@ -46,7 +47,7 @@ def describe_text(study: Study, description: dict) -> str:
     lines.append("states and their equations")
     width = max(len(s) for s in study.states)
     for state, text in study.ode_text.items():
-        lines.append(f"  d{state:<{width}}/dt = {text}")
+        lines.append(f"  d{state:<{width}}/dt = {visible(text)}")   # one line each, whatever was typed
     lines += ["", "domains (where a steady state counts)"]
     for state in study.states:
         low, high = study.domain[state]
@@ -75,6 +76,6 @@ def describe_text(study: Study, description: dict) -> str:
     if study.claims:
         lines += ["", "claims"]
         for claim in study.claims:
-            lines.append(f"  {claim.name}: {claim.holds}")
+            lines.append(f"  {claim.name}: {visible(claim.holds)}")
     lines += ["", "ok: the study is valid"]
     return "\n".join(lines)

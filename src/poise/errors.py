@@ -7,6 +7,8 @@ exit status 2; everything else is a bug or an environment problem (exit status 1
 
 from __future__ import annotations
 
+from poise.study.vocabulary import visible
+
 
 class InputError(Exception):
     """Invalid user input, located by file, table and key where known.
@@ -43,8 +45,26 @@ class InputError(Exception):
         if self.key:
             where.append(f"key '{self.key}'")
         prefix = " ".join(where)
-        return f"{prefix}: {self.problem}" if prefix else self.problem
+        # control characters from a file are shown as escapes, never sent to a terminal
+        return visible(f"{prefix}: {self.problem}" if prefix else self.problem)
 
 
 class ExpressionError(ValueError):
     """An expression in study-file syntax was refused by the safe parser."""
+
+
+class PoiseWarning(UserWarning):
+    """Something the user should know that does not stop the work (e.g. `jobs`
+    capped); the CLI prints it as one line."""
+
+
+# scipy warns when a scrambled Sobol' sequence is cut at a size that is not a power of
+# 2; poise does that knowingly (the user's size; the finders' start points)
+SOBOL_BALANCE_WARNING = r".*balance properties of Sobol' points"
+
+
+def quiet_sobol_balance() -> None:
+    """Hide scipy's balance warning for Sobol' sizes that are not powers of 2 in this
+    process (warning filters are per process: worker processes call this too)."""
+    import warnings
+    warnings.filterwarnings("ignore", message=SOBOL_BALANCE_WARNING, category=UserWarning)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Mapping
 
 import numpy as np
@@ -22,11 +23,15 @@ def inspect_point(study: Study, overrides: Mapping[str, float] | None = None) ->
         "jacobian", "eigenvalues", "class", "stability", "margin", "trace",
         "determinant", "discriminant"}], "status": "ok" | reason}
     """
+    from poise.errors import quiet_sobol_balance
+    quiet_sobol_balance()
     values = study.nominal_values()
     values.update(overrides or {})
     model = compile_model(study, values, varying=())
     method = choose_method(study, model)
-    result = analyse_sets(study, model, np.array([0]), np.zeros((1, 0)), solver_method=method)
+    # claims are not shown here: a claim undefined at this point must not hide the states
+    result = analyse_sets(dataclasses.replace(study, claims=()), model, np.array([0]),
+                          np.zeros((1, 0)), solver_method=method)
     table = result.equilibria
     two_d = model.dimension == 2
     equilibria = []

@@ -10,7 +10,7 @@ Arrow (no pandas round trip), as it runs in the parent, after all workers are do
 
 from __future__ import annotations
 
-import os
+import sys
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 from pathlib import Path
@@ -20,6 +20,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
+
+from poise.engine.storage import atomic_file
 
 FIXED_SET_COLUMNS = ("sample_id", "status", "reason", "n_steady", "n_stable")
 NULLABLE_COUNTS = ("n_steady", "n_stable")
@@ -134,31 +136,31 @@ def _pandas_schema(table: pa.Table) -> pa.Schema:
 
 
 class _Streamed:
-    """A parquet file written a row group at a time under a temporary name, then
-    flushed, fsynced and renamed into place (readers never see half a table)."""
+    """A parquet file written a row group at a time into a temporary file of
+    `atomic_file` (random name, created exclusively), then fsynced and renamed into
+    place: readers never see half a table."""
 
     def __init__(self, target: Path):
-        self.target = target
-        self.temporary = target.with_name(f".{target.name}.{os.getpid()}.tmp")
+        self.temporary = atomic_file(target, sync_folder=False)
         self.writer: pq.ParquetWriter | None = None
 
     def __enter__(self):
+        self.file = self.temporary.__enter__()
         return self
 
     def write(self, table: pa.Table, pandas_types: bool = True) -> None:
         if self.writer is None:
             schema = _pandas_schema(table) if pandas_types else table.schema
-            self.writer = pq.ParquetWriter(self.temporary, schema)
+            self.writer = pq.ParquetWriter(self.file, schema)
         self.writer.write_table(table.cast(self.writer.schema))
 
     def __exit__(self, kind, value, trace) -> None:
-        if self.writer is not None:
-            self.writer.close()
-        if kind is not None:
-            self.temporary.unlink(missing_ok=True)
-            return
-        if self.writer is None:
-            pq.write_table(pa.table({}), self.temporary)
-        with open(self.temporary, "rb+") as stream:
-            os.fsync(stream.fileno())
-        os.replace(self.temporary, self.target)
+        try:
+            if self.writer is not None:
+                self.writer.close()
+            elif kind is None:
+                pq.write_table(pa.table({}), self.file)
+        except BaseException:
+            self.temporary.__exit__(*sys.exc_info())   # removes the temporary
+            raise
+        self.temporary.__exit__(kind, value, trace)    # renamed into place, or removed on an error

@@ -155,9 +155,14 @@ def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason
         sets = {name: np.full(batch, value) for name, value in model.fixed_values.items()}
         sets.update({name: params[:, j] for j, name in enumerate(model.varying)})
         for claim in study.claims:
-            values = claim.evaluate(steady, owner, sets, batch)
+            values, undefined = claim.evaluate_sets(steady, owner, sets, batch)
             frame[claim.name] = pd.array(np.where(ok, values, False), dtype="boolean")
-            frame.loc[~ok, claim.name] = pd.NA
+            undefined &= (frame["status"] == "ok").to_numpy()   # a claim error fails its set
+            frame.loc[undefined, "reason"] = (f"claim '{claim.name}' is undefined here (a division "
+                                              "by zero or a number out of range)")
+            frame.loc[undefined, "status"] = "failed"
+        failed = (frame["status"] != "ok").to_numpy()
+        frame.loc[failed, ["n_steady", "n_stable", *(claim.name for claim in study.claims)]] = pd.NA
     return frame
 
 

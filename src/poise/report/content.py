@@ -1,38 +1,25 @@
-"""Build the report's tables (plain `Table` objects) from a loaded run."""
+"""Build the report's tables (plain `Table` objects) from a loaded run: the study,
+its parameters, failures, claim probabilities and steady states. The sensitivity
+tables are in `sensitivity`."""
 
 from __future__ import annotations
 
-import math
-
+from .equations import derivative, equation, expression, symbol
 from .load import RunData
-from .readings import fmt_value, priority_reading, regional_reading
-from .regional import ks_regional
-from .tables import Column, Interval, Table
+from .methods import completeness_words, finder_words
+from .readings import fmt_value
+from .tables import Column, Table, as_float, as_interval
 
 __all__ = [
     "CLASS_ORDER", "describe_distribution", "study_table", "parameters_table",
     "failures_table", "claims_table", "stable_count_table", "classes_table",
-    "sobol_claims", "sobol_table", "priority_table", "regional_results",
-    "regional_table", "is_rough",
 ]
 
 CLASS_ORDER = ["stable node", "stable focus", "unstable node", "unstable focus",
                "saddle", "saddle-focus", "center", "non-hyperbolic"]
-ROUGH_WIDTH = 0.1  # interval width beyond which an index needs more samples (design.md)
 
 _DESIGN_WORDS = {"sobol": "scrambled Sobol sequence (quasi-random)",
                  "lhs": "Latin hypercube", "random": "independent random draws"}
-
-
-def _interval(pair) -> Interval:
-    if not pair or len(pair) != 2:
-        return Interval(math.nan, math.nan)
-    lo, hi = pair
-    return Interval(math.nan if lo is None else float(lo), math.nan if hi is None else float(hi))
-
-
-def _float(value) -> float:
-    return math.nan if value is None else float(value)
 
 
 def describe_distribution(spec: dict) -> str:
@@ -62,18 +49,20 @@ def study_table(run: RunData) -> Table:
     """Model, design and bookkeeping of the run."""
     m, s = run.manifest, run.summary
     rows: list[list] = [["Title", run.title]]
-    states = m.get("states", [])
+    states = run.state_order
     rows.append(["States", ", ".join(states)])
     reduced = m.get("reduced_states", states)
     if list(reduced) != list(states):
         rows.append(["States left after conservation", ", ".join(reduced)])
-    for state, expr in m.get("ode", {}).items():
-        rows.append([f"d{state}/dt", expr])
+    ode = m.get("ode", {})
+    for state in states:
+        if state in ode:
+            rows.append([derivative(state), expression(ode[state])])
     for total, expr in m.get("conserved", {}).items():
-        rows.append(["Conserved total", f"{total} = {expr}"])
+        rows.append(["Conserved total", equation(total, expr)])
     params = m.get("parameters", {})
-    fixed = [f"{k} = {fmt_value(spec.get('value'))}" for k, spec in params.items()
-             if isinstance(spec, dict) and "dist" not in spec]
+    fixed = [f"{k} = {fmt_value(params[k].get('value'))}" for k in run.parameter_order
+             if isinstance(params.get(k), dict) and "dist" not in params[k]]
     if fixed:
         rows.append(["Fixed parameters", ", ".join(fixed)])
     rows.append(["Uncertain parameters", ", ".join(run.uncertain_parameters) or "none"])
@@ -94,20 +83,10 @@ def study_table(run: RunData) -> Table:
         words = "none"
     rows.append(["Sensitivity analysis", words])
     if m.get("solver"):
-        solver = m.get("solver")
-        choice = (s.get("solver") or {}).get("choice")
-        if choice:  # "auto": say why
-            solver += (f" (chosen automatically: predicted homotopy speed {choice['predicted_speed']:g}x "
-                       f"Newton's, from {choice['newton_iterations_per_set']:g} Newton iterations vs "
-                       f"{choice['homotopy_evaluations_per_set']:g} homotopy evaluations per probe set)")
-        rows.append(["Steady-state solver", solver])
-    check = (s.get("solver") or {}).get("completeness")
-    if check and check.get("checked"):
-        lo, hi = check["ci95"]
-        rows.append(["Missed steady states (check)",
-                     f"{check['missed']} of {check['checked']} re-solved sets had a steady state the run missed "
-                     f"({100 * check['fraction']:.1f} %, 95 % interval {100 * lo:.1f}-{100 * hi:.1f} %); "
-                     f"reference: {check['reference']}"])
+        rows.append(["Steady-state solver", finder_words(run)])
+    check = completeness_words(run)
+    if check:
+        rows.append(["Missed steady states (check)", check])
     version = (s.get("tool") or m.get("tool") or {}).get("version", "unknown")
     rows.append(["poise version", version])
     if m.get("study_sha256"):
@@ -123,16 +102,18 @@ def study_table(run: RunData) -> Table:
 def parameters_table(run: RunData) -> Table:
     """Each parameter: fixed or uncertain, its distribution and nominal value."""
     rows = []
-    for name, spec in run.manifest.get("parameters", {}).items():
-        if not isinstance(spec, dict):
-            continue
+    specs = run.manifest.get("parameters", {})
+    for name in run.parameter_order:
+        spec = specs[name]
         uncertain = "dist" in spec
         nominal = spec.get("nominal") if uncertain else spec.get("value")
-        rows.append([name, "uncertain" if uncertain else "fixed",
-                     describe_distribution(spec), _float(nominal)])
+        rows.append([symbol(name), "uncertain" if uncertain else "fixed",
+                     describe_distribution(spec), as_float(nominal)])
     return Table("parameters", "Parameters",
                  [Column("Parameter"), Column("Kind"), Column("Distribution", wide=True),
-                  Column("Nominal value", "number")], rows)
+                  Column("Nominal value", "exact")], rows,
+                 note="Values as given in the study, at full precision; the nominal value of an "
+                      "uncertain parameter is its 'nominal' entry, else its median.")
 
 
 def failures_table(run: RunData) -> Table | None:
@@ -164,8 +145,8 @@ def claims_table(run: RunData) -> Table | None:
         entry = claims.get(name)
         if entry is None:
             continue
-        rows.append([name, entry.get("holds", holds.get(name, "")), _float(entry.get("probability")),
-                     _interval(entry.get("ci95")), entry.get("successes"), entry.get("n")])
+        rows.append([name, entry.get("holds", holds.get(name, "")), as_float(entry.get("probability")),
+                     as_interval(entry.get("ci95")), entry.get("successes"), entry.get("n")])
     return Table("claims", "How probable each claim is",
                  [Column("Claim"), Column("Holds when", wide=True), Column("Probability", "prob"),
                   Column("95 % interval", "interval"), Column("Sets where it holds", "int"),
@@ -183,7 +164,7 @@ def _count_key(key: str):
 def stable_count_table(run: RunData) -> Table:
     """Distribution of the number of stable steady states per set."""
     dist = run.summary.get("stable_count", {})
-    rows = [[str(k), _float(dist[k].get("probability")), _interval(dist[k].get("ci95"))]
+    rows = [[str(k), as_float(dist[k].get("probability")), as_interval(dist[k].get("ci95"))]
             for k in sorted(dist, key=_count_key)]
     return Table("stable_count", "Number of stable steady states per parameter set",
                  [Column("Stable steady states"), Column("Probability", "prob"),
@@ -201,109 +182,7 @@ def classes_table(run: RunData) -> Table:
     for label in sorted(labels):
         entry = labels[label]
         shares = entry.get("classes", {})
-        rows.append([label, _float(entry.get("present"))] + [_float(shares.get(c, 0.0)) for c in classes])
+        rows.append([label, as_float(entry.get("present"))] + [as_float(shares.get(c, 0.0)) for c in classes])
     return Table("classes", "Kind of each steady state",
                  columns, rows,
                  note="Class shares are fractions of the sets where that steady state exists.")
-
-
-def sobol_claims(run: RunData) -> list[tuple[str, dict]]:
-    """(claim, entry) for the claims that have Sobol indices, in claim order."""
-    sens = run.summary.get("sensitivity", {})
-    return [(name, sens[name]) for name in run.claim_names
-            if name in sens and sens[name].get("method") == "sobol"]
-
-
-def _width(interval: Interval) -> float:
-    return interval.hi - interval.lo
-
-
-def is_rough(entry: dict, param: str) -> bool:
-    """An index of ``param`` is flagged, or either interval is wider than 0.1."""
-    if param in entry.get("flags", {}):
-        return True
-    widths = [_width(_interval(entry.get(key, {}).get(param))) for key in ("S1_ci95", "ST_ci95")]
-    return any(w > ROUGH_WIDTH for w in widths if not math.isnan(w))
-
-
-def _params_of(entry: dict) -> list[str]:
-    return list(entry.get("ST", {}) or entry.get("S1", {}))
-
-
-def sobol_table(run: RunData) -> Table | None:
-    """First-order and total Sobol indices with intervals, per claim and parameter."""
-    entries = sobol_claims(run)
-    if not entries:
-        return None
-    rows = []
-    for claim, entry in entries:
-        for param in _params_of(entry):
-            rows.append([claim, param, _float(entry.get("S1", {}).get(param)),
-                         _interval(entry.get("S1_ci95", {}).get(param)),
-                         _float(entry.get("ST", {}).get(param)),
-                         _interval(entry.get("ST_ci95", {}).get(param)),
-                         "more samples needed" if is_rough(entry, param) else ""])
-    return Table("sobol", "Sobol sensitivity indices",
-                 [Column("Claim"), Column("Parameter"), Column("S1", "index"),
-                  Column("S1 95 % interval", "interval"), Column("ST", "index"),
-                  Column("ST 95 % interval", "interval"), Column("Note")], rows)
-
-
-def priority_table(run: RunData) -> Table | None:
-    """Parameters ranked per claim by how much knowing them exactly would settle it."""
-    entries = sobol_claims(run)
-    if not entries:
-        return None
-    params_spec = run.manifest.get("parameters", {})
-    rows = []
-    for claim, entry in entries:
-        s1 = entry.get("S1", {})
-        st = entry.get("ST", {})
-        ranked = sorted(_params_of(entry),
-                        key=lambda p: (-_nan_low(s1.get(p)), -_nan_low(st.get(p)), p))
-        for rank, param in enumerate(ranked, start=1):
-            nominal = (params_spec.get(param) or {}).get("nominal")
-            reading = priority_reading(_float(s1.get(param)), _float(st.get(param)),
-                                       nominal=nominal, rough=is_rough(entry, param))
-            rows.append([claim, rank, param, _float(s1.get(param)), _float(st.get(param)), reading])
-    return Table("priorities", "Parameters ranked by how much knowing them would settle each claim",
-                 [Column("Claim"), Column("Rank", "int"), Column("Parameter"),
-                  Column("S1", "index"), Column("ST", "index"), Column("Reading", wide=True)],
-                 rows,
-                 note="S1: expected share of the variance in whether the claim holds that would "
-                      "disappear if the parameter were known exactly. ST below 0.01: the parameter "
-                      "can be fixed at its nominal value.")
-
-
-def _nan_low(value) -> float:
-    value = _float(value)
-    return -math.inf if math.isnan(value) else value
-
-
-def regional_results(run: RunData) -> dict[str, dict[str, dict]]:
-    """KS regional sensitivity of every claim over the independent analysed sets."""
-    chosen = run.independent_ok()
-    params = [p for p in run.uncertain_parameters if p in run.samples.columns]
-    if chosen.empty or not params:
-        return {}
-    values = run.parameters_of(chosen["sample_id"])
-    return {claim: ks_regional(values, chosen[claim], params)
-            for claim in run.claim_names if claim in chosen.columns}
-
-
-def regional_table(run: RunData, results: dict[str, dict[str, dict]]) -> Table | None:
-    """KS distance per claim and parameter, strongest first, with a reading."""
-    if not results:
-        return None
-    rows = []
-    for claim, per_param in results.items():
-        ordered = sorted(per_param.items(), key=lambda item: (-_nan_low(item[1]["ks"]), item[0]))
-        for param, r in ordered:
-            rows.append([claim, param, r["ks"], r["p_value"], r["n_true"], r["n_false"],
-                         regional_reading(r["ks"], r["p_value"], r["median_true"], r["median_false"])])
-    return Table("regional", "Where in each parameter's range the claim holds",
-                 [Column("Claim"), Column("Parameter"), Column("KS distance", "prob"),
-                  Column("p-value", "pvalue"), Column("Sets where it holds", "int"),
-                  Column("Sets where it fails", "int"), Column("Reading", wide=True)], rows,
-                 note="KS distance: largest gap between the parameter's cumulative distributions "
-                      "in sets where the claim holds and where it fails (0 = same, 1 = separate).")

@@ -4,42 +4,21 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy.stats import norm
+
+from ..analysis.intervals import wilson_interval
 
 __all__ = ["wilson", "convergence_frame", "checkpoints"]
 
-try:  # the project's own implementation, when present
-    from ..analysis.intervals import wilson_interval as _project_wilson
-except ImportError:  # pragma: no cover - depends on what else is installed
-    _project_wilson = None
-
-
-def _local_wilson(successes, n, confidence: float = 0.95):
-    """Wilson score interval (Wilson 1927), vectorised; NaN where n == 0."""
-    k = np.asarray(successes, dtype=float)
-    n = np.asarray(n, dtype=float)
-    z = norm.ppf(0.5 + confidence / 2.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        p = k / n
-        denom = 1.0 + z * z / n
-        centre = (p + z * z / (2.0 * n)) / denom
-        half = z / denom * np.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n))
-        lo = np.where(n > 0, np.clip(centre - half, 0.0, 1.0), np.nan)
-        hi = np.where(n > 0, np.clip(centre + half, 0.0, 1.0), np.nan)
-    return lo, hi
-
 
 def wilson(successes, n, confidence: float = 0.95):
-    """Wilson score interval; uses ``poise.analysis.intervals`` when available.
+    """Wilson score interval (Wilson 1927) as numpy arrays (`analysis.intervals`).
 
     Returns
     -------
     (lo, hi) : numpy arrays shaped like the broadcast of the inputs.
     """
-    if _project_wilson is not None:
-        lo, hi = _project_wilson(successes, n, confidence)
-        return np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
-    return _local_wilson(successes, n, confidence)
+    lo, hi = wilson_interval(successes, n, confidence)
+    return np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
 
 
 def checkpoints(n_total: int, count: int = 120) -> np.ndarray:

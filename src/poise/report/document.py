@@ -80,9 +80,18 @@ HOW_TO_READ = [
      "knowing that parameter exactly would remove that share on average. ST adds the "
      "parameter's joint effects with others. An ST near zero means the parameter can be fixed "
      "at its nominal value without changing the answer."),
+    ("What to measure first:",
+     "parameters are ranked by ST (which to pin down: the claim cannot be settled without "
+     "them) and, beside it, by S1 (which alone would settle the most). When every S1 is near "
+     "zero, the claim depends on combinations of parameters and the ST ranking is the one to "
+     "follow."),
     ("KS distance:",
      "how differently a parameter is spread in the sets where a claim holds and in those where it "
      "fails, from 0 (no difference) to 1 (no overlap)."),
+    ("Two-parameter maps:",
+     "the share of sets where a claim holds in each bin of two parameters, the others averaged "
+     "out; the number in a bin is how many sets it holds. A sharp change of colour marks where "
+     "the claim stops holding."),
     ("Convergence:",
      "when the running estimate has flattened and its band is narrow, the sample is large enough "
      "for that claim."),

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from .style import OKABE_ITO, label_text, new_figure
+from .style import OKABE_ITO, label_text, log_ticks, new_figure
 
 __all__ = ["claims_figure", "stable_count_figure", "sobol_figure", "convergence_figure"]
 
@@ -138,7 +138,7 @@ def convergence_figure(frame: pd.DataFrame, order: list[str]) -> Figure | None:
         ax.annotate(f"{final:.3f}", (1.0, final), xycoords=("axes fraction", "data"),
                     xytext=(3, 0), textcoords="offset points", va="center", fontsize=8)
         ax.set_ylim(-0.02, 1.02)
-        ax.set_xscale("log")
+        log_ticks(ax.xaxis, ax.set_xscale)
         ax.set_ylabel("probability")
         ax.set_title("Claim: " + label_text(name, 70, 1), loc="left")
     fig.legend(*axes[0].get_legend_handles_labels(), loc="outside upper center", ncols=3)

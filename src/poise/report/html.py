@@ -7,7 +7,6 @@ forbids every network request, so the file opens the same offline.
 from __future__ import annotations
 
 import base64
-from pathlib import Path
 
 from .document import Bullets, Document, FigureBlock, Heading, Paragraph, TableBlock
 from .escape import escape_html
@@ -38,6 +37,7 @@ p.tablenote { font-size: 0.85rem; color: #444; margin-top: 0; }
 figure { margin: 1.5rem 0; }
 figure img { max-width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: 0.9rem; color: #333; margin-top: 0.3rem; }
+math { font-size: 1.15em; }
 """
 
 _CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
@@ -50,9 +50,8 @@ def _item(item) -> str:
     return escape_html(item)
 
 
-def _image(path: Path) -> str:
-    data = base64.b64encode(path.read_bytes()).decode("ascii")
-    return f"data:image/png;base64,{data}"
+def _image(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
 def _contents(doc: Document) -> str:
@@ -63,8 +62,8 @@ def _contents(doc: Document) -> str:
     return "<nav><strong>Contents</strong><ol>" + "".join(entries) + "</ol></nav>"
 
 
-def render_html(doc: Document, figures_dir: Path) -> str:
-    """Complete HTML page; figures are read from ``figures_dir`` and embedded."""
+def render_html(doc: Document, pngs: dict[str, bytes]) -> str:
+    """Complete HTML page with every figure embedded (``pngs``: stem -> PNG bytes)."""
     body: list[str] = []
     for block in doc.blocks:
         if isinstance(block, Heading):
@@ -84,9 +83,8 @@ def render_html(doc: Document, figures_dir: Path) -> str:
             if block.table.note:
                 body.append(f'<p class="tablenote">{escape_html(block.table.note)}</p>')
         elif isinstance(block, FigureBlock):
-            png = figures_dir / f"{block.stem}.png"
             alt = escape_html(block.alt or block.caption)
-            body.append(f'<figure id="figure-{escape_html(block.stem)}"><img src="{_image(png)}" '
+            body.append(f'<figure id="figure-{escape_html(block.stem)}"><img src="{_image(pngs[block.stem])}" '
                         f'alt="{alt}"><figcaption>{escape_html(block.caption)}</figcaption></figure>')
     text = "\n".join(body).replace("<!--contents-->", _contents(doc), 1)
     return (

@@ -11,7 +11,6 @@ import math
 
 import numpy as np
 import pandas as pd
-from scipy.stats import ks_2samp
 
 __all__ = ["ks_regional"]
 
@@ -36,6 +35,8 @@ def ks_regional(samples: pd.DataFrame, outcome: pd.Series, names) -> dict[str, d
         "median_true": float, "median_false": float}}``; D and p are NaN when
         either group is empty.
     """
+    from scipy.stats import ks_2samp  # scipy.stats takes a while to import: only when needed
+
     values = pd.array(outcome, dtype="boolean")
     known = ~np.asarray(values.isna())
     holds = np.asarray(values.fillna(False), dtype=bool)

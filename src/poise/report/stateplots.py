@@ -22,14 +22,24 @@ def _view(values: np.ndarray, pad: float = 0.08) -> tuple[float, float]:
     return lo - pad * span, hi + pad * span
 
 
-def _scatter_by_class(ax, frame: pd.DataFrame, x: str, y: str) -> None:
+def _scatter_by_class(ax, frame: pd.DataFrame, x: str, y: str, totals: pd.Series) -> None:
+    """One marker style per class; the legend counts every steady state of the class,
+    also those left out of a thinned drawing."""
     present = list(pd.unique(frame["class"]))
     ordered = [c for c in CLASS_ORDER if c in present] + sorted(set(present) - set(CLASS_ORDER))
     for klass in ordered:
         part = frame.loc[frame["class"] == klass]
         colour, marker = CLASS_STYLE.get(klass, OTHER_CLASS_STYLE)
         ax.scatter(part[x], part[y], s=12, c=colour, marker=marker, alpha=0.6,
-                   linewidths=0, label=f"{klass} ({len(part)})", rasterized=len(part) > 2000)
+                   linewidths=0, label=f"{klass} ({int(totals.get(klass, len(part)))})",
+                   rasterized=True)
+
+
+def _thinned_note(ax, shown: int, total: int) -> None:
+    if shown < total:
+        ax.text(0.99, 0.06, f"{shown:,} of {total:,} steady states drawn (random subset)",
+                transform=ax.transAxes, ha="right", va="bottom", fontsize=7,
+                color=OKABE_ITO["grey"])
 
 
 def _outside_note(ax, frame: pd.DataFrame, x: str, y: str) -> None:
@@ -51,6 +61,7 @@ def trace_determinant_figure(equilibria: pd.DataFrame) -> Figure | None:
                           ["trace", "determinant", "class"]]
     if data.empty:
         return None
+    totals, total = data["class"].value_counts(), len(data)
     data = subsample(data)
     fig = new_figure(6.4, 4.8)
     ax = fig.add_subplot()
@@ -61,7 +72,8 @@ def trace_determinant_figure(equilibria: pd.DataFrame) -> Figure | None:
     t = np.linspace(*xlim, 400)
     ax.plot(t, t * t / 4, color=OKABE_ITO["black"], linestyle="--", linewidth=1,
             label="det = trace²/4")
-    _scatter_by_class(ax, data, "trace", "determinant")
+    _scatter_by_class(ax, data, "trace", "determinant", totals)
+    _thinned_note(ax, len(data), total)
     ax.set_xlim(xlim)
     ax.set_ylim(ylim)
     grey = {"fontsize": 7.5, "color": "#444444", "style": "italic", "transform": ax.transAxes,
@@ -84,6 +96,7 @@ def rightmost_eigenvalue_figure(equilibria: pd.DataFrame) -> Figure | None:
                           ["eig_re_0", "eig_im_0", "class"]]
     if data.empty:
         return None
+    totals, total = data["class"].value_counts(), len(data)
     data = subsample(data)
     fig = new_figure(6.4, 4.8)
     ax = fig.add_subplot()
@@ -93,7 +106,8 @@ def rightmost_eigenvalue_figure(equilibria: pd.DataFrame) -> Figure | None:
                label="negative real part (stable side)")
     ax.axhline(0, color=OKABE_ITO["black"], linewidth=0.9)
     ax.axvline(0, color=OKABE_ITO["black"], linewidth=1.2)
-    _scatter_by_class(ax, data, "eig_re_0", "eig_im_0")
+    _scatter_by_class(ax, data, "eig_re_0", "eig_im_0", totals)
+    _thinned_note(ax, len(data), total)
     ax.set_xlim(xlim)
     ax.set_ylim(ylim)
     ax.set_xlabel("real part of the rightmost eigenvalue")

@@ -1,24 +1,27 @@
-"""Shared figure style: palette, markers, reproducible saving, subsampling.
+"""Shared figure style: palette, markers, reproducible rendering, thinning.
 
 Colours are the Okabe & Ito (2008) colour-blind-safe set; every category also gets
-its own marker or hatch, so figures stay readable in greyscale.
+its own marker or hatch, so figures stay readable in greyscale. Shares from 0 to 1
+use matplotlib's "cividis" map, made to read the same with colour-vision deficiency.
 """
 
 from __future__ import annotations
 
 import contextlib
+import io
 import textwrap
-from pathlib import Path
 
 import matplotlib
 import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter, LogLocator, NullLocator
 
 from .escape import escape_mathtext
 
-__all__ = ["OKABE_ITO", "CLASS_STYLE", "OUTCOME_STYLE", "MAX_POINTS", "figure_style",
-           "new_figure", "save_figure", "subsample", "label_text"]
+__all__ = ["OKABE_ITO", "CLASS_STYLE", "OUTCOME_STYLE", "SHARE_COLORMAP", "MAX_POINTS",
+           "figure_style", "new_figure", "render_figure", "subsample", "label_text",
+           "log_ticks"]
 
 OKABE_ITO = {
     "black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",
@@ -45,6 +48,11 @@ OUTCOME_STYLE = {
     False: (OKABE_ITO["orange"], "x", "claim fails"),
 }
 
+SHARE_COLORMAP = "cividis"
+
+# Scatter plots draw at most this many points (a fixed random subset, said so in the
+# caption) and embed them as an image in the SVG: tens of thousands of vector markers
+# make a slow, multi-megabyte file that adds nothing at print size.
 MAX_POINTS = 20_000
 SUBSAMPLE_SEED = 20_240_601  # fixed: the same run always gives the same picture
 
@@ -76,17 +84,15 @@ def new_figure(width: float = 6.4, height: float = 4.0) -> Figure:
     return Figure(figsize=(width, height), layout="constrained")
 
 
-def save_figure(fig: Figure, directory: Path, stem: str) -> list[Path]:
-    """Write ``stem.png`` (150 dpi) and ``stem.svg`` with metadata fixed for reproducible bytes."""
-    directory.mkdir(parents=True, exist_ok=True)
-    png = directory / f"{stem}.png"
-    svg = directory / f"{stem}.svg"
-    fig.savefig(png, dpi=150, metadata={"Software": None})
+def render_figure(fig: Figure) -> dict[str, bytes]:
+    """The figure as PNG (150 dpi) and SVG bytes, metadata fixed for reproducible bytes."""
+    png, svg = io.BytesIO(), io.BytesIO()
+    fig.savefig(png, format="png", dpi=150, metadata={"Software": None})
     # The layout is settled by the first save; solving it again costs time and
     # gives the same positions.
     fig.set_layout_engine("none")
-    fig.savefig(svg, metadata={"Date": None, "Creator": None})
-    return [png, svg]
+    fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
+    return {"png": png.getvalue(), "svg": svg.getvalue()}
 
 
 def subsample(frame: pd.DataFrame, max_points: int = MAX_POINTS) -> pd.DataFrame:
@@ -105,3 +111,12 @@ def label_text(text: str, width: int = 40, max_lines: int = 2) -> str:
         lines = lines[:max_lines]
         lines[-1] = lines[-1][: max(width - 1, 1)] + "…"
     return "\n".join(escape_mathtext(line) for line in lines)
+
+
+def log_ticks(axis, set_scale) -> None:
+    """Log scale with a few plain-number ticks (1, 2, 5 per decade) and no crowded minor labels."""
+    set_scale("log")
+    axis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+    axis.set_major_formatter(FuncFormatter(lambda value, _pos: f"{value:g}"))
+    # no minor ticks: eight unlabelled ticks per decade cost drawing time and add nothing
+    axis.set_minor_locator(NullLocator())

@@ -1,33 +1,32 @@
-"""Write every report file of a finished run: tables, figures, report.md, report.html."""
+"""Write every report file of a finished run: tables, figures, the Methods text with its
+references, report.md and report.html.
+
+Everything is built in memory first and written only when all of it is ready, each
+file atomically through `poise.engine.storage.write_atomic`: a run directory whose
+data cannot be read gets no file at all, never a half-rebuilt report.
+"""
 
 from __future__ import annotations
 
-import os
 import re
 from pathlib import Path
 
-from . import content
+from . import content, sensitivity
 from .assemble import assemble
 from .convergence import convergence_frame
-from .factormap import factor_map_figure, influential_parameters
-from .figures import claims_figure, convergence_figure, sobol_figure, stable_count_figure
-from .html import render_html
+from .figureset import FigureSet, draw_figures
 from .load import RunData, load_run
-from .markdown import render_markdown
-from .stateplots import rightmost_eigenvalue_figure, trace_determinant_figure
-from .style import figure_style, save_figure
+from .methods import cited_keys, methods_latex, methods_paragraphs
+from .references import bibtex
 from .tables import Column, Table, to_csv, to_latex
 
-__all__ = ["write_report"]
+__all__ = ["write_report", "build_report"]
 
-
-def _write_text(path: Path, text: str) -> Path:
-    """Write atomically (temporary file, then rename) with Unix line endings."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_bytes(text.encode("utf-8"))
-    os.replace(tmp, path)
-    return path
+# Tables drawn from a parquet file; without the file they are not rebuilt.
+_TABLE_SOURCES = {"failures": ("samples.parquet",),
+                  "regional": ("samples.parquet", "outcomes.parquet"),
+                  "convergence": ("outcomes.parquet",)}
+_MAP_TABLE = re.compile(r"probability_map_claim\d+")
 
 
 def _build_tables(run: RunData, regional: dict) -> dict[str, Table]:
@@ -38,9 +37,9 @@ def _build_tables(run: RunData, regional: dict) -> dict[str, Table]:
         "claims": content.claims_table(run),
         "stable_count": content.stable_count_table(run),
         "classes": content.classes_table(run),
-        "sobol": content.sobol_table(run),
-        "priorities": content.priority_table(run),
-        "regional": content.regional_table(run, regional),
+        "sobol": sensitivity.sobol_table(run),
+        "priorities": sensitivity.priority_table(run),
+        "regional": sensitivity.regional_table(run, regional),
     }
     return {name: table for name, table in built.items() if table is not None}
 
@@ -54,17 +53,91 @@ def _convergence_table(frame) -> Table:
     return Table("convergence", "Running estimate of each claim", columns, rows)
 
 
-def write_report(run_dir: str | Path) -> list[Path]:
+def _not_rebuilt(run: RunData, figures: FigureSet) -> tuple[list[str], set[str], dict[str, str]]:
+    """Messages, the files to leave in place, and figures of an earlier rendering to show."""
+    root, messages, keep, earlier = run.run_dir, [], set(), {}
+    for stem, reason in figures.not_rebuilt.items():
+        old = [f"figures/{stem}.{ext}" for ext in ("png", "svg") if (root / "figures" / f"{stem}.{ext}").is_file()]
+        keep.update(old)
+        if old:
+            earlier[stem] = reason
+            messages.append(f"figures/{stem} not rebuilt ({reason}); the earlier rendering is kept")
+        else:
+            messages.append(f"figures/{stem} cannot be drawn ({reason})")
+    names = dict(_TABLE_SOURCES)
+    if run.missing:
+        names.update({p.stem: ("samples.parquet", "outcomes.parquet")
+                      for p in (root / "tables").glob("probability_map_claim*.csv")})
+    for name, sources in names.items():
+        reason = run.missing_reason(*sources)
+        old = [f"tables/{name}.{ext}" for ext in ("csv", "tex") if (root / "tables" / f"{name}.{ext}").is_file()]
+        if reason and old:
+            keep.update(old)
+            messages.append(f"tables/{name} not rebuilt ({reason}); the earlier version is kept")
+    return messages, keep, earlier
+
+
+def build_report(run: RunData) -> tuple[dict[str, bytes], list[str], set[str]]:
+    """Every report file of a loaded run, in memory.
+
+    Returns
+    -------
+    (files, messages, keep) : relative path -> bytes in writing order; one line per
+        figure or table that a missing data file keeps from being rebuilt; and the
+        relative paths of earlier renderings to leave in place.
+    """
+    files: dict[str, bytes] = {}
+    regional = sensitivity.regional_results(run)
+    tables = _build_tables(run, regional)
+    for table in tables.values():
+        files[f"tables/{table.name}.csv"] = to_csv(table).encode()
+        files[f"tables/{table.name}.tex"] = to_latex(table).encode()
+
+    independent = run.independent_ok()
+    claims = [c for c in run.claim_names if c in independent.columns]
+    convergence = convergence_frame(independent, claims)
+    if not convergence.empty:
+        files["tables/convergence.csv"] = to_csv(_convergence_table(convergence)).encode()
+
+    figures = draw_figures(run, regional, convergence)
+    for table in figures.tables:
+        files[f"tables/{table.name}.csv"] = to_csv(table).encode()
+    for stem, images in figures.images.items():
+        for ext, data in images.items():
+            files[f"figures/{stem}.{ext}"] = data
+    messages, keep, earlier = _not_rebuilt(run, figures)
+
+    paragraphs = methods_paragraphs(run)
+    keys = cited_keys(paragraphs)
+    files["methods.tex"] = methods_latex(paragraphs).encode()
+    files["references.bib"] = bibtex(keys).encode()
+
+    from .html import render_html
+    from .markdown import render_markdown
+    pngs = {stem: images["png"] for stem, images in figures.images.items()}
+    for stem in earlier:
+        pngs[stem] = (run.run_dir / "figures" / f"{stem}.png").read_bytes()
+    doc = assemble(run, tables, figures, earlier, messages, paragraphs, keys)
+    files["report.md"] = render_markdown(doc).encode()
+    files["report.html"] = render_html(doc, pngs).encode()
+    return files, messages, keep
+
+
+def write_report(run_dir: str | Path, notes: list[str] | None = None) -> list[Path]:
     """Write the report of a finished run without recomputing the study.
 
     Reads ``summary.json``, ``manifest.json`` and the parquet tables of ``run_dir``
-    and writes ``report.md``, ``report.html``, ``tables/*.csv``, ``tables/*.tex``,
-    ``figures/*.png`` and ``figures/*.svg``. The same inputs give the same bytes.
+    and writes ``report.md``, ``report.html``, ``methods.tex``, ``references.bib``,
+    ``tables/*.csv``, ``tables/*.tex``, ``figures/*.png`` and ``figures/*.svg``. The
+    same inputs give the same bytes.
 
     Parameters
     ----------
     run_dir : str or Path
         Directory written by ``poise run``.
+    notes : list of str, optional
+        Receives one line per figure or table that could not be rebuilt because a data
+        file is missing (the earlier rendering, if any, is kept and the report says so).
 
     Returns
     -------
@@ -74,95 +147,40 @@ def write_report(run_dir: str | Path) -> list[Path]:
     Raises
     ------
     poise.errors.InputError
-        If the directory is not a readable run directory.
+        If the directory is not a finished run or one of its files cannot be read
+        (nothing is written then).
     """
+    from ..engine.storage import write_atomic
+
     run = load_run(run_dir)
-    root = run.run_dir
-    written: list[Path] = []
-
-    regional = content.regional_results(run)
-    tables = _build_tables(run, regional)
-    for table in tables.values():
-        written.append(_write_text(root / "tables" / f"{table.name}.csv", to_csv(table)))
-        written.append(_write_text(root / "tables" / f"{table.name}.tex", to_latex(table)))
-
-    independent = run.independent_ok()
-    claims = [c for c in run.claim_names if c in independent.columns]
-    convergence = convergence_frame(independent, claims)
-    if not convergence.empty:
-        written.append(_write_text(root / "tables" / "convergence.csv",
-                                   to_csv(_convergence_table(convergence))))
-
-    figures_dir = root / "figures"
-    captions: dict[str, str] = {}
-    claim_stems: dict[str, dict[str, str]] = {}
-    state_stem = "steady_states_trace_determinant" if run.reduced_dimension == 2 \
-        else "steady_states_rightmost_eigenvalue"
-
-    def keep(fig, stem: str, caption: str) -> None:
-        if fig is not None:
-            written.extend(save_figure(fig, figures_dir, stem))
-            captions[stem] = caption
-
-    with figure_style():
-        keep(claims_figure(run.summary.get("claims", {}), run.claim_names), "claims",
-             "Probability of each claim with its 95 % Wilson interval.")
-        keep(stable_count_figure(run.summary.get("stable_count", {})), "stable_count",
-             "Share of parameter sets with each number of stable steady states, with 95 % intervals.")
-        if run.reduced_dimension == 2:
-            keep(trace_determinant_figure(run.equilibria), state_stem,
-                 "Every sampled steady state on the trace-determinant plane of its Jacobian, "
-                 "by kind. Above the dashed parabola the eigenvalues are complex (spirals); "
-                 "left of the vertical axis with positive determinant is stable.")
-        else:
-            keep(rightmost_eigenvalue_figure(run.equilibria), state_stem,
-                 "Rightmost eigenvalue of every sampled steady state in the complex plane, by "
-                 "kind. Left of the vertical axis the steady state is stable.")
-        sensitivity = run.summary.get("sensitivity", {})
-        params = [p for p in run.uncertain_parameters if p in run.samples.columns]
-        values = run.parameters_of(independent["sample_id"]) if not independent.empty else None
-        for number, claim in enumerate(run.claim_names, start=1):
-            stems = claim_stems.setdefault(claim, {})
-            entry = sensitivity.get(claim, {})
-            if entry.get("method") == "sobol":
-                stem = f"sobol_claim{number:02d}"
-                stems["sobol"] = stem
-                rough = {p: content.is_rough(entry, p) for p in entry.get("ST", {}) or entry.get("S1", {})}
-                keep(sobol_figure(claim, entry, rough), stem,
-                     f"Sobol indices for '{claim}': first order (solid) and total (hatched), "
-                     "with 95 % bootstrap intervals.")
-            if claim in regional and values is not None:
-                stem = f"factor_map_claim{number:02d}"
-                stems["factor_map"] = stem
-                chosen = influential_parameters(params, entry, regional[claim])
-                keep(factor_map_figure(claim, values, independent[claim], chosen, regional[claim],
-                                       run.manifest.get("parameters", {})), stem,
-                     f"Parameter sets where '{claim}' holds (blue dots) or fails (orange "
-                     "crosses), for its most influential parameters; the diagonal compares the "
-                     "two distributions (solid: holds, dashed: fails) with their KS distance.")
-        keep(convergence_figure(convergence, run.claim_names), "convergence",
-             "Running estimate of each claim's probability and its 95 % Wilson interval as "
-             "independent parameter sets are added in the order they were drawn.")
-
-    doc = assemble(run, tables, captions, claim_stems, state_stem)
-    written.append(_write_text(root / "report.md", render_markdown(doc)))
-    written.append(_write_text(root / "report.html", render_html(doc, figures_dir)))
-    _drop_stale(figures_dir, written)
+    files, messages, keep = build_report(run)
+    written = []
+    for name, data in files.items():
+        path = run.run_dir / name
+        write_atomic(path, data)
+        written.append(path)
+    _drop_stale(run.run_dir, set(files) | keep)
+    if notes is not None:
+        notes.extend(messages)
     return written
 
 
-# figure files poise writes; others in figures/ are the user's and are left alone
+# files poise writes under figures/ and tables/ that depend on the claims; other files
+# there are the user's and are left alone
 _OWN_FIGURE = re.compile(r"(claims|stable_count|convergence|steady_states_[a-z_]+|"
-                         r"(sobol|factor_map)_claim\d+)\.(png|svg)")
+                         r"(sobol|factor_map|probability_map)_claim\d+)\.(png|svg)")
 
 
-def _drop_stale(figures_dir: Path, written: list[Path]) -> None:
-    """Remove figures of an earlier rendering that this one did not produce (a figure
-    that no longer applies, e.g. after the study's claims changed), so that nothing in
-    figures/ contradicts the report next to it."""
-    if not figures_dir.is_dir():
-        return
-    fresh = {p.resolve() for p in written}
-    for path in figures_dir.iterdir():
-        if _OWN_FIGURE.fullmatch(path.name) and path.resolve() not in fresh:
-            path.unlink()
+def _drop_stale(root: Path, current: set[str]) -> None:
+    """Remove figures (and probability-map tables) of an earlier rendering that this one
+    did not produce, e.g. after the study's claims changed, so that nothing next to the
+    report contradicts it."""
+    for folder, pattern in (("figures", _OWN_FIGURE), ("tables", _MAP_TABLE)):
+        directory = root / folder
+        if not directory.is_dir():
+            continue
+        for path in directory.iterdir():
+            name = path.name if folder == "figures" else path.stem
+            if pattern.fullmatch(name) and path.suffix in (".png", ".svg", ".csv") \
+                    and f"{folder}/{path.name}" not in current:
+                path.unlink()

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import qmc
 
+from poise.errors import SOBOL_BALANCE_WARNING
 from poise.sampling.distributions import Distribution
 
 KINDS = ("random", "lhs", "sobol")
@@ -85,7 +86,7 @@ def _base_points(kind: str, size: int, dim: int, seed: int) -> np.ndarray:
     if size & (size - 1) == 0:
         return engine.random_base2(int(size).bit_length() - 1)
     with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message=".*balance properties.*")
+        warnings.filterwarnings("ignore", message=SOBOL_BALANCE_WARNING)
         return engine.random(size)
 
 

@@ -2,10 +2,8 @@
 
 A claim such as ``count(stable) >= 2`` or ``any(stable and G > 1e-9)`` is compiled
 once from study-file text into a small tree of plain dataclasses (never
-``eval``), type-checked, and then evaluated for all parameter sets at once: the
-condition inside an aggregator is computed over every steady-state row of every
-set in one vectorised pass, and the rows are folded per set with
-:func:`numpy.bincount`.
+``eval``; the nodes and their vectorised evaluation are in `poise.study.claim_nodes`),
+type-checked, and then evaluated for all parameter sets at once.
 """
 
 from __future__ import annotations
@@ -17,14 +15,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from poise.errors import ExpressionError
+from poise.study.claim_nodes import (Aggregate, Arithmetic, Columns, Compare, Function, Logic,
+                                     Negate, Not, Number, Parameter, SteadyColumn)
 from poise.study.expressions import (check_call, check_name, literal_number,
                                      quote_source, refusal, syntax_tree)
+from poise.study.vocabulary import AGGREGATORS, STEADY_FLAGS, STEADY_NUMBERS
 
 __all__ = ["STEADY_FLAGS", "STEADY_NUMBERS", "AGGREGATORS", "Claim", "compile_claim"]
-
-STEADY_FLAGS = ("stable", "unstable", "undetermined", "node", "focus", "saddle", "oscillatory")
-STEADY_NUMBERS = ("margin",)
-AGGREGATORS = ("any", "all", "none", "count")
 
 _FUNCTION_ARITY = {"exp": (1, 1), "log": (1, 1), "sqrt": (1, 1), "abs": (1, 1),
                    "min": (2, None), "max": (2, None)}
@@ -36,178 +33,6 @@ _COMPARISONS = {ast.Lt: "<", ast.LtE: "<=", ast.Gt: ">", ast.GtE: ">=",
                 ast.Eq: "==", ast.NotEq: "!="}
 
 BOOL, NUMBER = "true/false", "number"
-
-
-# --------------------------------------------------------------------------- evaluation
-
-class _Columns:
-    """Where names get their values: per parameter set, or per steady-state row."""
-
-    def __init__(self, steady, owner, sets, n_sets, *, per_row: bool):
-        self.steady, self.owner, self.sets, self.n_sets = steady, owner, sets, n_sets
-        self.per_row = per_row
-
-    def rows(self) -> "_Columns":
-        return _Columns(self.steady, self.owner, self.sets, self.n_sets, per_row=True)
-
-    def parameter(self, name: str) -> np.ndarray:
-        try:
-            values = np.asarray(self.sets[name], dtype=float)
-        except KeyError:
-            raise ValueError(f"parameter table lacks column '{name}'") from None
-        if values.shape != (self.n_sets,):
-            raise ValueError(f"parameter column '{name}' has shape {values.shape}, "
-                             f"expected ({self.n_sets},)")
-        return values[self.owner] if self.per_row else values
-
-    def steady_column(self, name: str, dtype) -> np.ndarray:
-        try:
-            values = np.asarray(self.steady[name], dtype=dtype)
-        except KeyError:
-            raise ValueError(f"steady-state table lacks column '{name}'") from None
-        if values.shape != self.owner.shape:
-            raise ValueError(f"steady-state column '{name}' has shape {values.shape}, "
-                             f"expected {self.owner.shape}")
-        return values
-
-
-@dataclass(frozen=True)
-class _Number:
-    value: float
-
-    def evaluate(self, columns: _Columns):
-        return np.float64(self.value)
-
-
-@dataclass(frozen=True)
-class _Parameter:
-    name: str
-
-    def evaluate(self, columns: _Columns):
-        return columns.parameter(self.name)
-
-
-@dataclass(frozen=True)
-class _SteadyColumn:
-    name: str
-    is_flag: bool
-
-    def evaluate(self, columns: _Columns):
-        return columns.steady_column(self.name, bool if self.is_flag else float)
-
-
-@dataclass(frozen=True)
-class _Arithmetic:
-    """``first op1 x1 op2 x2 ...`` applied left to right (flat, so long sums need no recursion)."""
-
-    first: object
-    steps: tuple  # ((op, operand), ...)
-
-    def evaluate(self, columns: _Columns):
-        result = self.first.evaluate(columns)
-        for op, operand in self.steps:
-            value = operand.evaluate(columns)
-            if op == "+":
-                result = result + value
-            elif op == "-":
-                result = result - value
-            elif op == "*":
-                result = result * value
-            elif op == "/":
-                result = result / value
-            else:
-                result = result ** value
-        return result
-
-
-@dataclass(frozen=True)
-class _Negate:
-    operand: object
-
-    def evaluate(self, columns: _Columns):
-        return -self.operand.evaluate(columns)
-
-
-_NUMPY_FUNCTIONS = {"exp": np.exp, "log": np.log, "sqrt": np.sqrt, "abs": np.abs}
-
-
-@dataclass(frozen=True)
-class _Function:
-    name: str
-    args: tuple
-
-    def evaluate(self, columns: _Columns):
-        values = [arg.evaluate(columns) for arg in self.args]
-        if self.name == "min":
-            return np.minimum.reduce(np.broadcast_arrays(*values))
-        if self.name == "max":
-            return np.maximum.reduce(np.broadcast_arrays(*values))
-        return _NUMPY_FUNCTIONS[self.name](values[0])
-
-
-@dataclass(frozen=True)
-class _Compare:
-    ops: tuple
-    operands: tuple
-
-    def evaluate(self, columns: _Columns):
-        values = [operand.evaluate(columns) for operand in self.operands]
-        result = np.True_
-        for op, a, b in zip(self.ops, values, values[1:]):
-            if op == "<":
-                holds = a < b
-            elif op == "<=":
-                holds = a <= b
-            elif op == ">":
-                holds = a > b
-            elif op == ">=":
-                holds = a >= b
-            elif op == "==":
-                holds = a == b
-            else:  # NaN is unequal to everything in IEEE terms; a claim calls it false
-                holds = (a != b) & ~np.isnan(a) & ~np.isnan(b)
-            result = result & holds
-        return result
-
-
-@dataclass(frozen=True)
-class _Logic:
-    op: str  # "and" | "or"
-    operands: tuple
-
-    def evaluate(self, columns: _Columns):
-        combine = np.logical_and if self.op == "and" else np.logical_or
-        return combine.reduce(np.broadcast_arrays(
-            *[operand.evaluate(columns) for operand in self.operands]))
-
-
-@dataclass(frozen=True)
-class _Not:
-    operand: object
-
-    def evaluate(self, columns: _Columns):
-        return np.logical_not(self.operand.evaluate(columns))
-
-
-@dataclass(frozen=True)
-class _Aggregate:
-    kind: str                 # "any" | "all" | "none" | "count"
-    condition: object | None  # None: count() of every steady state
-
-    def evaluate(self, columns: _Columns):
-        owner, n_sets = columns.owner, columns.n_sets
-        if self.condition is None:
-            return np.bincount(owner, minlength=n_sets).astype(float)
-        holds = np.broadcast_to(self.condition.evaluate(columns.rows()), owner.shape)
-        if self.kind == "all":
-            failing = np.bincount(owner[~holds], minlength=n_sets)
-            return failing == 0
-        hits = np.bincount(owner[holds], minlength=n_sets)
-        if self.kind == "any":
-            return hits > 0
-        if self.kind == "none":
-            return hits == 0
-        return hits.astype(float)
 
 
 # --------------------------------------------------------------------------- the claim
@@ -227,10 +52,16 @@ class Claim:
     name: str
     holds: str
     _program: object = field(default=None, repr=False, compare=False)
+    names: frozenset = field(default=frozenset(), compare=False)   # the names it reads
 
     def evaluate(self, steady: Mapping[str, np.ndarray], owner: np.ndarray,
                  sets: Mapping[str, np.ndarray], n_sets: int) -> np.ndarray:
-        """Whether the claim holds for each parameter set.
+        """Whether the claim holds for each parameter set (see `evaluate_sets`)."""
+        return self.evaluate_sets(steady, owner, sets, n_sets)[0]
+
+    def evaluate_sets(self, steady: Mapping[str, np.ndarray], owner: np.ndarray,
+                      sets: Mapping[str, np.ndarray], n_sets: int) -> tuple[np.ndarray, np.ndarray]:
+        """Whether the claim holds for each parameter set, and where it is undefined.
 
         Parameters
         ----------
@@ -247,7 +78,11 @@ class Claim:
 
         Returns
         -------
-        numpy.ndarray of bool, shape (n_sets,)
+        holds, undefined : numpy.ndarray of bool, shape (n_sets,)
+            `undefined` marks the sets where the answer rests on a division by zero
+            or a number out of range (e.g. ``count()/0 > 1``): an error in that set,
+            not an answer. Three-valued logic decides what matters: ``x/y > 1`` is
+            undefined where ``y == 0``, but ``y > 0 and x/y > 1`` is false there.
 
         Notes
         -----
@@ -263,10 +98,12 @@ class Claim:
         owner = owner.astype(np.intp, copy=False)
         if owner.size and (owner.min() < 0 or owner.max() >= n_sets):
             raise ValueError(f"owner holds set indices outside 0..{n_sets - 1}")
-        columns = _Columns(steady, owner, sets, int(n_sets), per_row=False)
+        columns = Columns(steady, owner, sets, int(n_sets), per_row=False)
         with np.errstate(all="ignore"):
-            result = self._program.evaluate(columns)
-        return np.broadcast_to(np.asarray(result, dtype=bool), (int(n_sets),)).copy()
+            result, undefined = self._program.evaluate(columns)
+        shape = (int(n_sets),)
+        return (np.broadcast_to(np.asarray(result, dtype=bool), shape).copy(),
+                np.broadcast_to(np.asarray(undefined, dtype=bool), shape).copy())
 
 
 # --------------------------------------------------------------------------- compiler
@@ -289,17 +126,17 @@ class _Compiler:
         evaluated per steady state rather than per parameter set.
         """
         if isinstance(node, ast.Constant):
-            return _Number(float(literal_number(node, self.text))), NUMBER
+            return Number(float(literal_number(node, self.text))), NUMBER
         if isinstance(node, ast.Name):
             return self.name(node, inside)
         if isinstance(node, ast.UnaryOp):
             operand, kind = self.compile(node.operand, inside)
             if isinstance(node.op, ast.Not):
                 self.expect(kind, BOOL, node.operand, "'not' applies to")
-                return _Not(operand), BOOL
+                return Not(operand), BOOL
             if isinstance(node.op, (ast.UAdd, ast.USub)):
                 self.expect(kind, NUMBER, node.operand, "a sign applies to")
-                return (_Negate(operand) if isinstance(node.op, ast.USub) else operand), NUMBER
+                return (Negate(operand) if isinstance(node.op, ast.USub) else operand), NUMBER
             raise refusal(node, self.text)
         if isinstance(node, ast.BinOp):
             if type(node.op) not in _ARITHMETIC:
@@ -318,7 +155,7 @@ class _Compiler:
                 right, kind = self.compile(link.right, inside)
                 self.expect(kind, NUMBER, link.right, f"arithmetic ('{op}') needs")
                 steps.append((op, right))
-            return _Arithmetic(first, tuple(steps)), NUMBER
+            return Arithmetic(first, tuple(steps)), NUMBER
         if isinstance(node, ast.Compare):
             operands = []
             for operand_node in (node.left, *node.comparators):
@@ -331,7 +168,7 @@ class _Compiler:
                     raise ExpressionError(
                         f"only < <= > >= == != comparisons are allowed: {self.quote(node)}")
                 ops.append(_COMPARISONS[type(op)])
-            return _Compare(tuple(ops), tuple(operands)), BOOL
+            return Compare(tuple(ops), tuple(operands)), BOOL
         if isinstance(node, ast.BoolOp):
             word = "and" if isinstance(node.op, ast.And) else "or"
             operands = []
@@ -339,7 +176,7 @@ class _Compiler:
                 operand, kind = self.compile(operand_node, inside)
                 self.expect(kind, BOOL, operand_node, f"'{word}' combines")
                 operands.append(operand)
-            return _Logic(word, tuple(operands)), BOOL
+            return Logic(word, tuple(operands)), BOOL
         if isinstance(node, ast.Call):
             return self.call(node, inside)
         raise refusal(node, self.text)
@@ -371,15 +208,15 @@ class _Compiler:
             raise ExpressionError(f"unknown name '{name}'")  # caught earlier by _names_used
         meaning = meanings[0]
         if meaning == "parameter":
-            return _Parameter(name), NUMBER
+            return Parameter(name), NUMBER
         if not inside:
             what = "state" if meaning == "state" else "steady-state property"
             raise ExpressionError(
                 f"{what} '{name}' describes one steady state and can only be used "
                 f"inside any(), all(), none() or count()")
         if name in STEADY_FLAGS:
-            return _SteadyColumn(name, is_flag=True), BOOL
-        return _SteadyColumn(name, is_flag=False), NUMBER
+            return SteadyColumn(name, is_flag=True), BOOL
+        return SteadyColumn(name, is_flag=False), NUMBER
 
     def call(self, node: ast.Call, inside: bool) -> tuple[object, str]:
         name = check_call(node, _CALL_ARITY, self.text)
@@ -389,20 +226,20 @@ class _Compiler:
                     f"aggregators cannot be nested: {self.quote(node)} stands inside "
                     f"another any(), all(), none() or count()")
             if not node.args:
-                return _Aggregate("count", None), NUMBER
+                return Aggregate("count", None), NUMBER
             condition, kind = self.compile(node.args[0], inside=True)
             if kind != BOOL:
                 raise ExpressionError(
                     f"{name}() needs a condition that is true or false, but "
                     f"{self.quote(node.args[0])} is a number (e.g. write "
                     f"{name}({self.quote(node.args[0])} > 0))")
-            return _Aggregate(name, condition), (NUMBER if name == "count" else BOOL)
+            return Aggregate(name, condition), (NUMBER if name == "count" else BOOL)
         args = []
         for arg_node in node.args:
             arg, kind = self.compile(arg_node, inside)
             self.expect(kind, NUMBER, arg_node, f"{name}() needs")
             args.append(arg)
-        return _Function(name, tuple(args)), NUMBER
+        return Function(name, tuple(args)), NUMBER
 
     def allowed(self) -> str:
         parts = []
@@ -483,7 +320,8 @@ def compile_claim(name: str, holds: str, states: Sequence[str],
         compiler = _Compiler(holds, states, parameters)
         known = (compiler.states | compiler.parameters | set(STEADY_FLAGS)
                  | set(STEADY_NUMBERS) | set(_CALL_ARITY))
-        unknown = sorted(_names_used(tree, holds) - known)
+        used = _names_used(tree, holds)
+        unknown = sorted(used - known)
         if unknown:
             listed = ", ".join(f"'{item}'" for item in unknown)
             error = ExpressionError(
@@ -501,4 +339,4 @@ def compile_claim(name: str, holds: str, states: Sequence[str],
         if hasattr(exc, "unknown_names"):
             wrapped.unknown_names = exc.unknown_names
         raise wrapped from None
-    return Claim(name, holds, program)
+    return Claim(name, holds, program, frozenset(used - set(_CALL_ARITY)))

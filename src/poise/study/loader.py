@@ -19,20 +19,23 @@ import sympy
 from poise.errors import ExpressionError, InputError
 from poise.model.conservation import extra_laws
 from poise.sampling.distributions import check_parameter, make_distribution
-from poise.study.claims import STEADY_FLAGS, STEADY_NUMBERS, compile_claim
+from poise.study.claims import compile_claim
 from poise.study.expressions import FUNCTIONS, parse_expression, referenced_names
 from poise.study.spec import (RunSettings, SamplingSettings, SensitivitySettings,
                               SolverSettings, Study)
+from poise.study.vocabulary import (CLAIM_WORDS, SET_COLUMNS, is_hostile_character,
+                                    is_table_column, visible)
 
 TOP_LEVEL = {"title", "model", "parameters", "claims", "sampling", "sensitivity", "solver", "run"}
 MODEL_KEYS = {"states", "ode", "let", "domain", "conserved", "sbml"}
-RESERVED = set(FUNCTIONS) | set(STEADY_FLAGS) | set(STEADY_NUMBERS) | {
-    "any", "all", "none", "count", "inf", "nan", "pi"}
+RESERVED = set(FUNCTIONS) | CLAIM_WORDS
 NAME_PATTERN = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
-RESERVED_COLUMNS = {"sample_id", "block", "independent", "status", "reason", "n_steady", "n_stable"}
+# single-line text: names and titles (expressions may span lines)
+ONE_LINE_KEYS = {"title", "name"}
 DESIGNS = ("sobol", "lhs", "random")
 SOLVER_METHODS = ("auto", "newton", "homotopy")
 MAX_SIZE = 2**24
+MAX_SEED = 2**63 - 1
 
 
 class _Where:
@@ -74,11 +77,41 @@ def load_study(path: str | Path, *, text: str | None = None) -> Study:
             raise where.error(None, None, "no such study file") from None
         except (OSError, UnicodeDecodeError) as exc:
             raise where.error(None, None, f"cannot read the study file ({exc})") from None
+    text = text.removeprefix("\ufeff")   # a byte-order mark some editors write
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise where.error(None, None, f"not valid TOML: {exc}") from None
+    except RecursionError:   # the TOML reader recurses once per nested array or table
+        raise where.error(None, None, "arrays or tables are nested too deeply to read") from None
+    _no_hostile_text(data, where)
     return _build(path, text, data, where)
+
+
+def _no_hostile_text(data: dict, where: _Where) -> None:
+    """Refuse control and text-direction characters in every key and string: printed
+    raw, they could rewrite a terminal or reorder what a reader of the report sees.
+    (Walked with a stack: TOML nests as deep as its reader allows.)"""
+    pending: list[tuple[str | None, dict | list]] = [(None, data)]
+    while pending:
+        table, container = pending.pop()
+        items = container.items() if isinstance(container, dict) else ((None, v) for v in container)
+        for number, (key, value) in enumerate(items, start=1):
+            if key is not None:
+                _hostile(key, table, key, where, allow_line_breaks=False)
+            if isinstance(value, str):
+                _hostile(value, table, key, where, allow_line_breaks=key not in ONE_LINE_KEYS)
+            elif isinstance(value, (dict, list)):
+                inner = f"{table}[{number}]" if key is None else (f"{table}.{key}" if table else key)
+                pending.append((inner, value))
+
+
+def _hostile(text: str, table: str | None, key: str | None, where: _Where, allow_line_breaks: bool) -> None:
+    for char in text:
+        if is_hostile_character(char, allow_line_breaks):
+            raise where.error(table, key, f"holds the control or text-direction character "
+                                          f"{visible(char)}, which poise refuses in names, titles "
+                                          f"and expressions")
 
 
 def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
@@ -98,9 +131,12 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         ode_text = _ode_text(model, states, where)
         imported = {}
 
-    parameters_table = _table(data, "parameters", where, required=not imported)
+    # an SBML model brings its own values: [parameters] then only changes some
+    parameters_table = _table(data, "parameters", where, required="sbml" not in model)
     fixed, uncertain = _parameters(parameters_table, imported, where)
     parameter_names = list(fixed) + list(uncertain)
+    if imported or sbml_extra:   # ids of the SBML file, named by where they come from
+        _check_names([*states, *imported], "model", "sbml", where)
     _check_names(states, "model", "states", where)
     _check_names(parameter_names, "parameters", None, where)
     clash = set(states) & set(parameter_names)
@@ -134,15 +170,20 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
             fixed.pop(total, None)
     parameter_names = list(fixed) + list(uncertain)
 
-    used = set()
-    for expr in [*ode.values(), *conserved.values()]:
-        used |= {str(s) for s in expr.free_symbols}
-    for name in parameter_names:
-        if name not in used and name not in conserved:
-            warnings.append(f"{where.file}: [parameters] key '{name}': declared but not used by the model")
-
     domain = _domain(model, states, where, sbml_extra.get("domain", {}))
     claims = _claims(data, states, parameter_names, where)
+    used = set(conserved)
+    for expr in [*ode.values(), *conserved.values()]:
+        used |= {str(s) for s in expr.free_symbols}
+    for claim in claims:
+        used |= claim.names
+    for name in parameter_names:
+        if name in used:
+            continue
+        if name in uncertain:   # its spread would be reported as if it mattered
+            raise where.error("parameters", name, f"'{name}' has a distribution but the model "
+                              "and the claims do not use it; remove it or give it a plain value")
+        warnings.append(f"{where.file}: [parameters] key '{name}': declared but not used by the model")
     study = Study(
         path=path, text=text, title=title, states=tuple(states), ode=ode,
         ode_text=dict(ode_text), domain=domain, conserved=conserved, fixed=fixed,
@@ -293,6 +334,9 @@ def _check_names(names, table: str, key: str | None, where: _Where) -> None:
             raise where.error(table, key or name, f"'{name}' is not a usable name: start with a letter, then letters, digits or _ (no double underscores)")
         if name in RESERVED:
             raise where.error(table, key or name, f"'{name}' is a reserved word in poise expressions; choose another name")
+        if is_table_column(name) and table != "model.let":
+            raise where.error(table, key or name, f"'{name}' names a column of the run's tables "
+                              "(samples, outcomes or steady states); choose another name")
 
 
 # --- claims and settings -------------------------------------------------------
@@ -310,7 +354,7 @@ def _claims(data: dict, states, parameters, where: _Where):
         name, holds = claim.get("name"), claim.get("holds")
         if not isinstance(name, str) or not name.strip():
             raise where.error(table, "name", "expected a non-empty string")
-        if " ".join(name.split()) in RESERVED_COLUMNS:
+        if " ".join(name.split()) in SET_COLUMNS:
             raise where.error(table, "name", f"'{name}' names a column of the run's tables; choose another claim name")
         # names differing only in spaces would print alike in every table and figure
         if " ".join(name.split()) in seen:
@@ -330,7 +374,7 @@ def _sampling(data: dict, where: _Where) -> SamplingSettings:
     table = _table(data, "sampling", where)
     _no_unknown_keys(table, {"size", "design", "seed"}, "sampling", where)
     size = _integer(table, "size", SamplingSettings.size, 1, MAX_SIZE, "sampling", where)
-    seed = _integer(table, "seed", SamplingSettings.seed, 0, 2**63 - 1, "sampling", where)
+    seed = _integer(table, "seed", SamplingSettings.seed, 0, MAX_SEED, "sampling", where)
     design = _choice(table, "design", SamplingSettings.design, DESIGNS, "sampling", where)
     return SamplingSettings(size=size, design=design, seed=seed)
 
