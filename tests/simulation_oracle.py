@@ -1,11 +1,14 @@
 """An independent oracle for steady states: simulate the model's ODEs with scipy.
 
-For a loaded study: integrate d(state)/dt = f(state) with `scipy.integrate.solve_ivp`
-(stiff method, tight tolerances, analytic Jacobian) from the initial state and from
-perturbed initial states on the same conservation class, over ever longer horizons,
-until each trajectory either settles (then the point is polished into a steady state
-with `scipy.optimize.root`, the conservation laws replacing one equation each) or
-keeps oscillating with an undamped amplitude. Nothing here uses poise's finders.
+For a loaded study, the right-hand side and its Jacobian come from poise's compiled
+kernels for the model on its conservation class (the same equations poise solves;
+the import itself is checked against the SBML Test Suite). Everything else is
+scipy's: `scipy.integrate.solve_ivp` (stiff BDF, falling back to LSODA and Radau;
+tight tolerances; the analytic Jacobian) from the initial state and from perturbed
+initial states on the same conservation class, over ever longer horizons, until each
+trajectory either settles (the end point is then polished into a steady state with
+`scipy.optimize.root`) or keeps oscillating with an undamped amplitude. Nothing here
+uses poise's finders or its stability classification.
 """
 
 from __future__ import annotations
@@ -13,23 +16,24 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-import sympy
 from scipy.integrate import solve_ivp
-from scipy.optimize import lsq_linear, root
+from scipy.optimize import root
 
-from poise.model.conservation import law_vector
+from poise.model import compile_model
 
 RTOL = 1e-9               # tighter makes the error estimate of BDF chase rounding
-HORIZONS = tuple(10.0 ** k for k in range(0, 9))  # time units, cumulative
-MAX_STEPS = 200_000       # in one horizon: give up (undecided) rather than run for ever
-SETTLED = 1e-9           # |f_i| * horizon below this share of the state's size: settled
+HORIZONS = tuple(10.0 ** k for k in range(0, 7))  # time units, cumulative
+MAX_EVALUATIONS = 60_000  # right-hand sides per horizon: give up (undecided) beyond
+SETTLED = 1e-6            # |f_i| * horizon below this share of the state's size: settled
+TRIES = 20                # random draws per perturbed start before giving up on it
 
 
 @dataclass
 class Trajectory:
-    start: np.ndarray
-    outcome: str                  # "settled", "oscillating" or "undecided"
-    point: np.ndarray | None = None  # polished steady state where settled
+    start: np.ndarray                # every state (the model's column order)
+    outcome: str                     # "settled", "oscillating" or "undecided"
+    point: np.ndarray | None = None  # polished steady state (every state) where settled
+    degenerate: bool = False         # the settled point's Jacobian is singular (a continuum)
     detail: str = ""
 
 
@@ -40,131 +44,134 @@ class Oracle:
 
 
 class _Model:
+    """The reduced right-hand side f(x) of the free states and its Jacobian, at one
+    parameter point; `full` maps free states to every state."""
+
     def __init__(self, study, values=None):
-        values = dict(study.nominal_values() if values is None else values)
-        self.states = study.states
-        symbols = [sympy.Symbol(s, real=True) for s in self.states]
-        numbers = {sympy.Symbol(p, real=True): sympy.Float(v) for p, v in values.items()}
-        rhs = [study.ode[s].xreplace(numbers) for s in self.states]
-        self.f = sympy.lambdify(symbols, rhs, modules="numpy", cse=True)
-        jac = sympy.Matrix(rhs).jacobian(sympy.Matrix(symbols))
-        self.j = sympy.lambdify(symbols, jac, modules="numpy", cse=True)
-        terms = [sum(sympy.Abs(t) for t in sympy.Add.make_args(sympy.expand(e, deep=False)))
-                 for e in rhs]
-        self.size = sympy.lambdify(symbols, terms, modules="numpy", cse=True)
-        laws = [law_vector(c, self.states) for c in study.conserved.values()]
-        self.laws = np.array([[float(c) for c in law] for law in laws], dtype=float).reshape(len(laws), len(self.states))
-        self.low = np.array([study.domain[s][0] for s in self.states])
+        self.compiled = compile_model(study, values, varying=())
+        self.kernels = self.compiled.kernels
+        self.free = np.asarray(self.kernels.free_columns, dtype=int)
+        self.low = self.compiled.domain_low
+        self.high = self.compiled.domain_high
+        self.evaluations = 0
 
-    def rhs(self, _t, y):
-        return np.asarray(self.f(*y), dtype=float)
+    def f(self, x: np.ndarray) -> np.ndarray:
+        self.evaluations += 1
+        return self.kernels.rhs(x[None, :], np.zeros((1, 0)))[0]
 
-    def jacobian(self, _t, y):
-        return np.asarray(self.j(*y), dtype=float)
+    def jacobian(self, x: np.ndarray) -> np.ndarray:
+        return self.kernels.jacobian(x[None, :], np.zeros((1, 0)))[0]
+
+    def size(self, x: np.ndarray) -> np.ndarray:
+        """The sum of |terms| of each equation: the scale its residual is judged by."""
+        return self.kernels.term_size(x[None, :], np.zeros((1, 0)))[0]
+
+    def full(self, x: np.ndarray) -> np.ndarray:
+        return self.kernels.full_states(x[None, :], np.zeros((1, 0)))[0]
+
+    def inside(self, full: np.ndarray) -> bool:
+        return bool(np.all(np.isfinite(full)) and np.all(full >= self.low) and np.all(full <= self.high))
 
 
 def simulate(study, perturbations: int = 3, seed: int = 0, values=None) -> Oracle:
-    """Trajectories from the initial state and `perturbations` perturbed ones."""
+    """Trajectories from the initial state and `perturbations` perturbed ones (same
+    conservation class: the eliminated states follow from the totals)."""
     model = _Model(study, values)
-    x0 = np.array([study.initial[s] for s in study.states], dtype=float)
+    x0 = np.array([study.initial[s] for s in study.states], dtype=float)[model.free]
     starts = [x0] + _perturbed(model, x0, perturbations, np.random.default_rng(seed))
-    oracle = Oracle(states=study.states)
+    oracle = Oracle(states=tuple(study.states))
     for start in starts:
         oracle.trajectories.append(_follow(model, start))
     return oracle
 
 
 def _perturbed(model: _Model, x0: np.ndarray, count: int, rng) -> list[np.ndarray]:
-    """Random points near x0 on its conservation class (totals kept), inside the domain."""
-    totals = model.laws @ x0
-    scale = np.maximum(np.abs(x0), 0.1 * reference(x0))
+    """Random points near x0 (each free state scaled by up to a factor of about 2 and
+    moved by up to a tenth of the largest state), whose every state is in the domain."""
+    reach = 0.1 * reference(model.full(x0))
     found = []
     for _ in range(count):
-        wanted = x0 + scale * rng.normal(0.0, 0.5, size=x0.size)
-        if not model.laws.size:
-            point = np.maximum(wanted, model.low)
-        else:
-            weight = 1e6
-            a = np.vstack([np.eye(x0.size), weight * model.laws])
-            b = np.concatenate([wanted, weight * totals])
-            lower = np.where(np.isfinite(model.low), model.low, -np.inf)
-            point = lsq_linear(a, b, bounds=(lower, np.full(x0.size, np.inf))).x
-            if not np.allclose(model.laws @ point, totals, rtol=1e-7, atol=1e-12 * np.abs(totals).max()):
-                continue
-        found.append(point)
+        for attempt in range(TRIES):
+            shrink = 0.5 ** (attempt // 5)   # smaller moves when the domain keeps refusing
+            factor = np.exp(shrink * rng.normal(0.0, 0.5, size=x0.size))
+            shift = shrink * reach * rng.uniform(-1.0, 1.0, size=x0.size)
+            point = x0 * factor + shift
+            if model.inside(model.full(point)):
+                found.append(point)
+                break
     return found
 
 
 def _follow(model: _Model, start: np.ndarray) -> Trajectory:
     y, t = start.copy(), 0.0
-    ref = reference(start)
+    full_start = model.full(start)
+    ref = reference(full_start)
     atol = 1e-12 * np.maximum(np.abs(start), 1e-3 * ref)
+    fun = lambda _t, x: model.f(x)              # noqa: E731
+    jac = lambda _t, x: model.jacobian(x)       # noqa: E731
     for horizon in HORIZONS:
-        solution = None
+        solution, detail = None, ""
         for method in ("BDF", "LSODA", "Radau"):
-            budget = _Budget(model.rhs, MAX_STEPS * 5)
+            model.evaluations = 0
             try:
                 with np.errstate(all="ignore"):
-                    solution = solve_ivp(budget, (t, horizon), y, method=method, jac=model.jacobian,
-                                         rtol=RTOL, atol=atol)  # every step: narrow spikes show
+                    solution = solve_ivp(_budgeted(fun, model), (t, horizon), y, method=method,
+                                         jac=jac, rtol=RTOL, atol=atol)
             except (ValueError, _OutOfBudget) as exc:  # a non-finite Jacobian, or endless steps
                 solution = None
-                detail = str(exc) or f"more than {MAX_STEPS * 5} evaluations by t = {horizon:g}"
+                detail = str(exc) or f"more than {MAX_EVALUATIONS} evaluations by t = {horizon:g}"
                 continue
             if solution.success:
                 break
-        if solution is None:
-            return Trajectory(start, "undecided", detail=f"integration failed: {detail}")
-        if not solution.success:
-            return Trajectory(start, "undecided", detail=f"integration failed: {solution.message}")
+            detail = solution.message
+        if solution is None or not solution.success:
+            return Trajectory(model.full(start), "undecided", detail=f"integration failed: {detail}")
         y, t = solution.y[:, -1], horizon
         if _settled(model, y, horizon, ref):
             point = _polish(model, y, ref)
             if point is None:
-                return Trajectory(start, "undecided", detail="settled, but root did not converge")
-            return Trajectory(start, "settled", point)
-        if _oscillating(solution.y):
-            return Trajectory(start, "oscillating", detail=f"undamped oscillation by t = {horizon:g}")
-        if solution.t.size > MAX_STEPS:
-            return Trajectory(start, "undecided", detail=f"more than {MAX_STEPS} steps by t = {horizon:g}")
-    return Trajectory(start, "undecided", detail="neither settled nor oscillating by the last horizon")
+                return Trajectory(model.full(start), "undecided", detail="settled, but root did not converge")
+            return Trajectory(model.full(start), "settled", model.full(point),
+                              degenerate=_degenerate(model, point))
+        if _oscillating(solution.y, ref):
+            return Trajectory(model.full(start), "oscillating", detail=f"undamped oscillation by t = {horizon:g}")
+    return Trajectory(model.full(start), "undecided", detail="neither settled nor oscillating by the last horizon")
 
 
 class _OutOfBudget(Exception):
     pass
 
 
-class _Budget:
-    """The right-hand side, refusing to be called more than `limit` times."""
-
-    def __init__(self, rhs, limit: int):
-        self.rhs, self.left = rhs, limit
-
-    def __call__(self, t, y):
-        self.left -= 1
-        if self.left < 0:
+def _budgeted(fun, model: _Model):
+    def limited(t, x):
+        if model.evaluations > MAX_EVALUATIONS:
             raise _OutOfBudget()
-        return self.rhs(t, y)
+        return fun(t, x)
+    return limited
 
 
 def reference(x: np.ndarray) -> float:
-    """A size for the model's states: the largest initial value (1 when all are zero)."""
-    return float(np.abs(x).max()) or 1.0
+    """A size for the model's states: the largest |value| (1 when all are zero)."""
+    return float(np.abs(x).max(initial=0.0)) or 1.0
 
 
 def _settled(model: _Model, y: np.ndarray, horizon: float, ref: float) -> bool:
+    """Over another span as long as the time so far, no state would move by more than
+    a millionth of its size (sizes at least 1e-9 of the largest state)."""
     with np.errstate(all="ignore"):
-        rate = np.abs(np.asarray(model.f(*y), dtype=float))
-    size = np.maximum(np.abs(y), 1e-9 * max(np.abs(y).max(), ref))
-    return bool(np.all(rate * horizon <= SETTLED * 1e3 * size))
+        rate = np.abs(model.f(y))
+    size = np.maximum(np.abs(y), 1e-9 * max(np.abs(y).max(initial=0.0), ref))
+    return bool(np.all(rate * horizon <= SETTLED * size))
 
 
-def _oscillating(path: np.ndarray) -> bool:
+def _oscillating(path: np.ndarray, ref: float) -> bool:
     """Some state swings up and down by a fifth of its range at least four times, and
-    the last swings are as large as earlier ones (not a decaying spiral)."""
+    the last swings are as large as earlier ones (not a decaying spiral). Swings of a
+    thousandth of the state's size, or of 1e-9 of the largest state, are rounding
+    noise around a steady state, not an oscillation."""
     for row in path:
         span = row.max() - row.min()
-        if span <= 1e-3 * max(np.abs(row).max(), 1e-300):  # rounding wiggles near a steady state
+        if span <= max(1e-3 * np.abs(row).max(), 1e-9 * ref):
             continue
         peaks = _swings(row, 0.2 * span)
         if len(peaks) >= 4 and peaks[-1] >= 0.9 * peaks[-3]:
@@ -191,49 +198,34 @@ def _swings(row: np.ndarray, threshold: float) -> list[float]:
 
 
 def _polish(model: _Model, y: np.ndarray, ref: float) -> np.ndarray | None:
-    """Newton (scipy root) on f = 0 with one equation per conservation law replaced by
-    the law itself, so the root stays on the trajectory's class."""
-    n = y.size
-    replaced = []
-    if model.laws.size:
-        _q, _r, pivots = _pivot_columns(model.laws)
-        replaced = pivots
-    totals = model.laws @ y
-
-    def equations(x):
-        f = np.asarray(model.f(*x), dtype=float)
-        for k, i in enumerate(replaced):
-            f[i] = model.laws[k] @ x - totals[k]
-        return f
-
-    def jacobian(x):
-        j = np.asarray(model.j(*x), dtype=float)
-        for k, i in enumerate(replaced):
-            j[i] = model.laws[k]
-        return j
-
-    # unknowns in units of each state's size, equations in units of their terms' size
-    scale = np.maximum(np.abs(y), 1e-12 * max(np.abs(y).max(), ref))
+    """scipy's root (hybrid Powell) on f = 0 from the trajectory's end, in units of each
+    state's size, each equation in units of its terms' size; None if it moves away or
+    leaves a residual above 1e-9 of the terms."""
+    scale = np.maximum(np.abs(y), 1e-12 * max(np.abs(y).max(initial=0.0), ref))
     with np.errstate(all="ignore"):
-        rows = np.asarray(model.size(*y), dtype=float)
-    for k, i in enumerate(replaced):
-        rows[i] = np.abs(model.laws[k]) @ np.abs(y)
+        rows = model.size(y)
     rows = np.where(rows > 0, rows, 1.0)
     with np.errstate(all="ignore"):
-        result = root(lambda z: equations(z * scale) / rows, y / scale, method="hybr",
-                      jac=lambda z: jacobian(z * scale) * scale[None, :] / rows[:, None],
+        result = root(lambda z: model.f(z * scale) / rows, y / scale, method="hybr",
+                      jac=lambda z: model.jacobian(z * scale) * scale[None, :] / rows[:, None],
                       options={"xtol": 1e-14})
     point = result.x * scale
-    if not np.all(np.isfinite(point)) or np.max(np.abs(point - y) / scale) > 1e-3:
+    if not np.all(np.isfinite(point)) or np.max(np.abs(point - y) / scale, initial=0.0) > 1e-3:
         return None
     with np.errstate(all="ignore"):
-        if np.max(np.abs(equations(point)) / rows) > 1e-9:
+        if np.max(np.abs(model.f(point)) / rows, initial=0.0) > 1e-9:
             return None
     return point
 
 
-def _pivot_columns(laws: np.ndarray):
-    """One distinct state per law (column pivoting), the equation replaced by that law."""
-    from scipy.linalg import qr
-    q, r, perm = qr(laws, pivoting=True)
-    return q, r, list(perm[:laws.shape[0]])
+def _degenerate(model: _Model, point: np.ndarray) -> bool:
+    """Whether the Jacobian at a settled point has an eigenvalue at zero (relative to its
+    largest, common practice, no source): the point then lies on a continuum of steady
+    states, which a trajectory reaches at a point set by where it started."""
+    if point.size == 0:
+        return False
+    scale = np.maximum(np.abs(point), 1e-9 * reference(point))
+    with np.errstate(all="ignore"):
+        jac = model.jacobian(point) * scale[None, :] / scale[:, None]  # in the states' own units
+        values = np.abs(np.linalg.eigvals(jac))
+    return bool(values.min() <= 1e-10 * max(values.max(), 1e-300))

@@ -110,7 +110,9 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
         if not (numerator.is_polynomial(*states) and denominator.is_polynomial(*states)):
             return None
         numerator, denominator = _cancel(numerator, denominator)
-        poly = sympy.Poly(numerator, *states)
+        # only the states it holds as generators: sympy's dense form nests one level per
+        # generator, so hundreds of states (most absent) made this take minutes
+        poly = sympy.Poly(numerator, *[x for x in states if x in numerator.free_symbols] or states[:1])
         if poly.is_zero:
             return None
         numerators.append(poly.as_expr())

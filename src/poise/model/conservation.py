@@ -22,8 +22,7 @@ from typing import Mapping, Sequence
 import numpy as np
 import sympy
 
-from poise.model.identity import (PRIMES, Evaluator, decimal_fraction, null_space_residues,
-                                  rank_mod, reconstruct)
+from poise.model.identity import PRIMES, Evaluator, decimal_fraction, null_spaces, rank_mod, reconstruct
 
 # Largest whole-number coefficient kept when a law is scaled to integers; beyond it the
 # law is written with its first coefficient 1 (e.g. "X + 4.3e-06*Y").
@@ -67,33 +66,52 @@ class LawProbe:
         """
         if not self.states:
             return []
-        structures = [null_space_residues(self.values[k], int(q)) for k, q in enumerate(PRIMES)]
-        fewest = min(len(free) for free, _ in structures)
-        # a prime at which the rank drops by accident shows more free columns: drop it
-        chosen = [k for k, (free, _) in enumerate(structures) if len(free) == fewest]
-        free = structures[chosen[0]][0]
-        chosen = [k for k in chosen if structures[k][0] == free]
-        primes = [int(PRIMES[k]) for k in chosen]
+        # two primes recover coefficients up to about 1e9 / 1e9 (stoichiometries,
+        # decimal sizes); all of them only when that fails. A law whose coefficients
+        # even all the primes cannot recover (beyond about 1e37) is left out.
+        for count in (2, len(PRIMES)):
+            last = count == len(PRIMES)
+            vectors = self._basis(count, partial=last)
+            if vectors is None:
+                continue
+            laws = []
+            fresh = LawProbe(self.ode, self.states, seed=_fresh_seed(self.evaluator)) if vectors else None
+            for law in _tidy(vectors) if tidy else vectors:
+                law = _normalised(law)
+                # checked at new points: guards against a wrongly reconstructed rational
+                if fresh.holds([sympy.Rational(c.numerator, c.denominator) for c in law]):
+                    laws.append({s: sympy.Rational(c.numerator, c.denominator)
+                                 for s, c in zip(self.states, law) if c != 0})
+                elif not last:
+                    break
+            else:
+                return laws
+        return []  # not reached: the last round returns
+
+    def _basis(self, count: int, partial: bool = False) -> list[list[Fraction]] | None:
+        """The law space's basis from residues modulo the first `count` primes, as exact
+        rationals; None when a coefficient cannot be recovered from them (with
+        `partial`, the vectors that can be are returned)."""
+        kept, free, basis = null_spaces(self.values[:count], PRIMES[:count])
+        primes = [int(q) for q in PRIMES[:count][kept]]
         vectors = []
         for row in range(len(free)):
             vector = []
             for col in range(len(self.states)):
-                value = reconstruct([structures[k][1][row, col] for k in chosen], primes)
+                residues = basis[:, row, col]
+                if not residues.any():
+                    vector.append(Fraction(0))
+                    continue
+                value = reconstruct(residues, primes)
                 if value is None:
                     break
                 vector.append(value)
             else:
                 vectors.append(vector)
-        laws = []
-        fresh = None
-        for law in _tidy(vectors) if tidy else vectors:
-            law = _normalised(law)
-            # checked at new points: guards against a wrongly reconstructed rational
-            fresh = fresh or LawProbe(self.ode, self.states, seed=_fresh_seed(self.evaluator))
-            if fresh.holds([sympy.Rational(c.numerator, c.denominator) for c in law]):
-                laws.append({s: sympy.Rational(c.numerator, c.denominator)
-                             for s, c in zip(self.states, law) if c != 0})
-        return laws
+                continue
+            if not partial:
+                return None
+        return vectors
 
     def holds(self, vector: Sequence[sympy.Expr]) -> bool:
         """Whether c · f ≡ 0 for the coefficients `vector` (numbers, in column order)."""

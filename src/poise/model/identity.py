@@ -167,26 +167,63 @@ def _power(base: np.ndarray, exponent: np.ndarray, modulus) -> np.ndarray:
 
 def row_reduce(matrix: np.ndarray, prime: int) -> tuple[np.ndarray, list[int]]:
     """Reduced row echelon form modulo `prime`; returns (rows, pivot columns)."""
-    a = np.array(matrix, dtype=np.int64) % prime
-    rows, cols = a.shape
+    _, reduced, pivots = row_reduce_many(np.asarray(matrix)[None], np.array([prime], dtype=np.int64))
+    return reduced[0], pivots
+
+
+def row_reduce_many(matrices: np.ndarray, primes: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[int]]:
+    """Reduced row echelon forms of one matrix's residues modulo several primes at once.
+
+    Parameters
+    ----------
+    matrices : array (k, rows, cols)
+        Residues modulo each of the `primes` (k,).
+
+    Returns
+    -------
+    kept : array of int
+        The primes (their positions) whose echelon form is returned: where a column
+        has a pivot modulo some primes but not others, the rank dropped by accident
+        modulo the latter (a random value hit zero), and they are left out.
+    reduced : array (len(kept), rank, cols)
+    pivots : list of int
+        The pivot columns, common to the kept primes.
+
+    Notes
+    -----
+    One pass over the columns for all primes together; each elimination touches only
+    the columns from the pivot on (those before it are already zero in the pivot row).
+    """
+    a = np.array(matrices, dtype=np.int64)
+    kept = np.arange(a.shape[0])
+    p = np.asarray(primes, dtype=np.int64)[:, None, None]
+    a %= p
+    _, rows, cols = a.shape
     pivots: list[int] = []
     r = 0
     for c in range(cols):
         if r == rows:
             break
-        nonzero = np.flatnonzero(a[r:, c])
-        if not nonzero.size:
+        nonzero = a[:, r:, c] != 0
+        found = nonzero.any(axis=1)
+        if not found.any():
             continue
-        k = r + nonzero[0]
-        a[[r, k]] = a[[k, r]]
-        a[r] = a[r] * pow(int(a[r, c]), prime - 2, prime) % prime
-        others = np.flatnonzero(a[:, c])
-        others = others[others != r]
-        if others.size:
-            a[others] = (a[others] - a[others, c:c + 1] * a[r]) % prime
+        if not found.all():
+            a, p, kept = a[found], p[found], kept[found]
+            nonzero = nonzero[found]
+        k = r + nonzero.argmax(axis=1)          # first usable row, per prime
+        layer = np.arange(a.shape[0])
+        pivot_rows = a[layer, k].copy()
+        a[layer, k] = a[:, r]
+        a[:, r] = pivot_rows
+        inverse = _power(a[:, r, c], p[:, 0, 0] - 2, p[:, 0, 0])
+        a[:, r, c:] = a[:, r, c:] * inverse[:, None] % p[:, 0]
+        factor = a[:, :, c].copy()
+        factor[:, r] = 0
+        a[:, :, c:] = (a[:, :, c:] - factor[:, :, None] * a[:, r:r + 1, c:]) % p
         pivots.append(c)
         r += 1
-    return a[:r], pivots
+    return kept, a[:, :r], pivots
 
 
 def null_space_residues(matrix: np.ndarray, prime: int) -> tuple[list[int], np.ndarray]:
@@ -196,15 +233,23 @@ def null_space_residues(matrix: np.ndarray, prime: int) -> tuple[list[int], np.n
     sympy's ``Matrix.nullspace`` gives over the rationals). Returns (free columns,
     vectors as rows).
     """
-    reduced, pivots = row_reduce(matrix, prime)
-    cols = matrix.shape[1]
-    free = [c for c in range(cols) if c not in set(pivots)]
-    basis = np.zeros((len(free), cols), dtype=np.int64)
-    for k, j in enumerate(free):
-        basis[k, j] = 1
-        for i, c in enumerate(pivots):
-            basis[k, c] = (-reduced[i, j]) % prime
-    return free, basis
+    _, free, basis = null_spaces(np.asarray(matrix)[None], np.array([prime], dtype=np.int64))
+    return free, basis[0]
+
+
+def null_spaces(matrices: np.ndarray, primes: np.ndarray) -> tuple[np.ndarray, list[int], np.ndarray]:
+    """`null_space_residues` modulo several primes at once: (kept primes, free columns,
+    bases (len(kept), len(free), cols)); see `row_reduce_many` for the kept primes."""
+    kept, reduced, pivots = row_reduce_many(matrices, primes)
+    cols = matrices.shape[2]
+    chosen = set(pivots)
+    free = [c for c in range(cols) if c not in chosen]
+    q = np.asarray(primes, dtype=np.int64)[kept][:, None, None]
+    basis = np.zeros((kept.size, len(free), cols), dtype=np.int64)
+    basis[:, np.arange(len(free)), free] = 1
+    if pivots and free:
+        basis[:, :, pivots] = (-reduced[:, :, free]).transpose(0, 2, 1) % q
+    return kept, free, basis
 
 
 def rank_mod(matrix: np.ndarray, prime: int) -> int:
