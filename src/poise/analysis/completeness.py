@@ -111,7 +111,7 @@ def _plan(study: Study, model: CompiledModel, params: np.ndarray, order: np.ndar
     wanted = min(CHECKED_SETS, max(affordable, LEAST))
     notes = []
     if method != references[0]:
-        notes.append("the thorough reference would cost more than the check's budget, so a cheaper one is used")
+        notes.append(f"{_reference(study, model, references[0])[1]} would cost more than the check's budget")
     if affordable < LEAST:
         notes.append(f"{wanted} sets checked, the fewest poise checks, although that costs more than "
                      f"{BUDGET:.0%} of this small run's work")

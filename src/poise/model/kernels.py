@@ -113,7 +113,7 @@ def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray
 def _real(value):
     """A complex value (log or power of a negative number) is no real rate: NaN, so the
     set is recorded as failed instead of silently losing the imaginary part."""
-    if np.iscomplexobj(value):
+    if isinstance(value, np.ndarray) and value.dtype.kind == "c" or isinstance(value, complex):
         value = np.where(np.imag(value) == 0, np.real(value), np.nan)
     return value
 
