@@ -177,6 +177,7 @@ def _run_poise_newton(case: Case, params: np.ndarray, repeat: int):
     try:
         from poise.equilibria.finder import find_steady_states
         from poise.model.kernels import compile_kernels
+        from poise.model.scales import scale_kernels
         from poise.model.system import ReducedSystem
     except Exception as exc:  # the Newton stack is developed in parallel
         return None, None, f"not available ({type(exc).__name__}: {exc})"
@@ -186,11 +187,10 @@ def _run_poise_newton(case: Case, params: np.ndarray, repeat: int):
                             parameters=tuple(str(p) for p in case.params),
                             domain={s: (low, np.inf) for s in names},
                             scales={s: None for s in names})
-    kernels = compile_kernels(reduced)
+    kernels = dataclasses.replace(compile_kernels(reduced), **scale_kernels(reduced))
     box = (np.full(len(names), low), np.full(len(names), np.inf))
-    find_steady_states(kernels, params[:8], np.abs(params[:8]).max(axis=1), *box)
-    states, elapsed = _best_time(lambda: find_steady_states(kernels, params, np.abs(params).max(axis=1), *box),
-                                 repeat)
+    find_steady_states(kernels, params[:8], *box)
+    states, elapsed = _best_time(lambda: find_steady_states(kernels, params, *box), repeat)
     found = [states.free[states.owner == i] for i in range(len(params))]
     return found, elapsed, "find_steady_states defaults"
 
@@ -224,15 +224,14 @@ def bundled(sets: int, seed: int, repeat: int) -> None:
         system = polynomial_system(model)
         design = make_design(tuple(study.uncertain), "random", sets, seed=seed, sobol_indices=False)
         params = map_to_parameters(design, study.uncertain)
-        magnitude = model.magnitude(params)
         box = (model.domain_low, model.domain_high)
         hubs = hub_parameters(study.uncertain, model.varying)
         t0 = time.perf_counter()
-        find_by_homotopy(model.kernels, system, params[:8], magnitude[:8], *box, hubs=hubs)
+        find_by_homotopy(model.kernels, system, params[:8], *box, hubs=hubs)
         setup = time.perf_counter() - t0
-        find_steady_states(model.kernels, params[:8], magnitude[:8], *box)
-        newton, t_newton = _best_time(lambda: find_steady_states(model.kernels, params, magnitude, *box), repeat)
-        homotopy, t_hom = _best_time(lambda: find_by_homotopy(model.kernels, system, params, magnitude, *box,
+        find_steady_states(model.kernels, params[:8], *box)
+        newton, t_newton = _best_time(lambda: find_steady_states(model.kernels, params, *box), repeat)
+        homotopy, t_hom = _best_time(lambda: find_by_homotopy(model.kernels, system, params, *box,
                                                               hubs=hubs), repeat)
         by_newton, by_homotopy = _per_set(newton, sets), _per_set(homotopy, sets)
         label = name.split("/")[0]
@@ -249,7 +248,7 @@ def bundled(sets: int, seed: int, repeat: int) -> None:
               f"  {paths_per_set(system, hubs)} paths/set ({generic_root_count(system)} generic), "
               f"set-up {setup:.2f} s")
         # counted work behind solver.method = "auto" (poise.equilibria.choice)
-        iterations = newton_work(model.kernels, params, magnitude, *box)
+        iterations = newton_work(model.kernels, params, *box)
         evaluations = solve_batch(system, params, seed=SEED, hubs=hubs).evaluations.mean()
         chosen, estimate = choose(dataclasses.replace(study, solver=dataclasses.replace(study.solver, method="auto")),
                                   model)

@@ -100,7 +100,7 @@ def prepare(name, sets, seed, folder):
         a, b = params.T
         owner, free = np.arange(sets), np.column_stack([a, b / a])
     else:
-        found = find_steady_states(model.kernels, params, model.magnitude(params), model.domain_low,
+        found = find_steady_states(model.kernels, params, model.domain_low,
                                    model.domain_high)
         owner, free = found.owner, found.free
     if name in INITIAL:

@@ -150,12 +150,12 @@ def run_poise(model, params: np.ndarray, settings) -> tuple[list[np.ndarray], fl
     """poise: every steady state and its class, for the whole batch at once."""
     kernels = model.kernels
     start = time.perf_counter()
-    found = find_steady_states(kernels, params, model.magnitude(params),
-                               model.domain_low, model.domain_high,
+    found = find_steady_states(kernels, params, model.domain_low, model.domain_high,
                                starts=settings.get("starts", 0),
                                deflation_rounds=settings.get("deflation_rounds", 2),
                                max_iterations=settings.get("max_iterations", 60))
-    classify(kernels.jacobian(found.free, params[found.owner]))
+    at = params[found.owner]
+    classify(kernels.jacobian(found.free, at), kernels.jacobian_terms(found.free, at))
     elapsed = time.perf_counter() - start
     bounds = np.searchsorted(found.owner, np.arange(params.shape[0] + 1))
     return [found.full[bounds[i]:bounds[i + 1]] for i in range(params.shape[0])], elapsed
@@ -176,7 +176,8 @@ class TextbookLoop:
         """Upper corner of the start box per set: twice the model's bound on each state,
         else twice the largest parameter."""
         bound = np.abs(self.model.kernels.scales(params))
-        fallback = np.maximum(1.0, self.model.magnitude(params))[:, None]
+        largest = max((abs(v) for v in self.model.fixed_values.values()), default=0.0)
+        fallback = np.maximum(1.0, np.maximum(largest, np.abs(params).max(axis=1, initial=0.0)))[:, None]
         return np.where(np.isfinite(bound) & (bound > 0), bound, fallback)
 
     def run(self, params: np.ndarray) -> tuple[list[np.ndarray], float]:

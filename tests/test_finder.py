@@ -64,8 +64,7 @@ def compiled(tmp_path, text):
 
 
 def solve(model, params):
-    return find_steady_states(model.kernels, params, model.magnitude(params),
-                              model.domain_low, model.domain_high)
+    return find_steady_states(model.kernels, params, model.domain_low, model.domain_high)
 
 
 def per_set(found, count):

@@ -591,7 +591,10 @@ def test_a_second_solve_does_not_change_how_the_first_solve_roots_merge():
     values = np.array([[-9.6098422352612744e-03, 2.9733267397200544e-03, 1.6040538267967488e-09,
                         1.6133583627464853e-09, 1.9345878823788214e-04, 5.2474806260195783e-06]])
     result = solve_batch(system, values)
-    assert result.status[0] == 0 and result.count[0] == 4
+    # the set may be flagged (status 1: its second solve, in units of the close pair,
+    # lost paths among roots 1e7 times larger; the pipeline then solves it again with
+    # Newton), but the roots it reports must be the four, the close pair kept apart
+    assert result.status[0] in (0, 1) and result.count[0] == 4
     np.testing.assert_allclose(result.roots[0, :, 0], np.sort(values[0, :4]), rtol=1e-6)
 
 

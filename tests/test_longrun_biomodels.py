@@ -73,7 +73,7 @@ def test_curated_oscillators_period_agrees_with_solve_ivp(tmp_path, model_id, ho
     model = compile_model(study)
     kernels = model.kernels
     params = np.zeros((1, 0))
-    found = find_steady_states(kernels, params, model.magnitude(params), model.domain_low, model.domain_high)
+    found = find_steady_states(kernels, params, model.domain_low, model.domain_high)
     x0 = np.array([study.initial[s] for s in study.states])[list(kernels.free_columns)]
     run = long_run(kernels, params, found.owner, found.free, initial=x0,
                    domain_low=model.domain_low, domain_high=model.domain_high)

@@ -128,9 +128,9 @@ def test_sobol_citations_match_salibs_docstring():
 def test_classification_rule_in_methods_matches_the_classifier():
     # the Methods text states the zero tolerance; it must be the classifier's default
     rtol = inspect.signature(classify).parameters["rtol"].default
-    assert rtol == 1e-8
+    assert rtol == 1e-9
     from poise.report.methods import _CLASSIFY
-    assert "within 1e-8 max(1, ‖J‖)" in _CLASSIFY
+    assert "off by 1e-9 of the size of its terms" in _CLASSIFY
 
 
 def test_report_keeps_its_cautions_next_to_the_methods(newton_run):

@@ -172,7 +172,8 @@ OVERFLOW = """
 def test_sets_that_overflow_are_recorded_as_failed(tmp_path):
     # IEEE 754: exp(q) overflows to inf for q > log(max float) ≈ 709.78 (numpy.finfo), so
     # x' = a - exp(q) x cannot be evaluated there; below it the steady state a/exp(q) is
-    # a stable node (closed form).
+    # a stable node (closed form), however small (down to 1e-308: the model is linear in
+    # x, nothing is squared).
     study = load_study(write_study(tmp_path, OVERFLOW))
     result = run_study(study, tmp_path / "run", jobs=1, report=False)
     samples = result.samples

@@ -381,29 +381,57 @@ def test_slow_rotation_still_counts_as_focus():
         assert _names(result) == [("stable focus", "stable")]
 
 
-def test_zero_means_small_relative_to_the_size_of_the_jacobian():
-    # tolerance rtol * max(1, ||J||_F): common practice, no source
+def test_zero_is_judged_against_the_uncertainty_of_the_entries():
+    # analytic result: a diagonal matrix's eigenvalues are its entries. Exact entries
+    # decide the sign however small an eigenvalue is next to the others (-1e6 and 1e-3:
+    # a saddle); an entry that is the difference of terms of size 1e7 is uncertain by
+    # rtol * 1e7 = 1e-2 and its 1e-3 cannot be told from zero.
     stack = np.array([np.diag([-1e6, 1e-3]), np.diag([-1.0, 1e-3]), np.diag([-1.0, 1e-9])])
-    result = classify(stack)
-    assert _names(result) == [("non-hyperbolic", "undetermined"), ("saddle", "unstable"),
-                              ("non-hyperbolic", "undetermined")]
-    loose = classify(np.diag([-1.0, 1e-3])[None], rtol=1e-2)
+    assert _names(classify(stack)) == [("saddle", "unstable")] * 3
+    sizes = np.abs(stack)
+    sizes[0, 1, 1] = 1e7
+    assert _names(classify(stack, sizes))[0] == ("non-hyperbolic", "undetermined")
+    loose = classify(np.diag([-1.0, 1e-3])[None], rtol=10.0)
     assert _names(loose) == [("non-hyperbolic", "undetermined")]
 
 
-def test_imaginary_parts_below_tolerance_are_not_oscillation():
-    # analytic result: [[0, w], [-w, 0]] has eigenvalues +- i w; with w below the
-    # tolerance rtol * max(1, ||J||_F) both parts count as zero (common practice,
-    # no source), so this is non-hyperbolic rather than a center, in 2 and 3 dims
+def test_imaginary_parts_within_the_uncertainty_are_not_oscillation():
+    # analytic result: [[0, w], [-w, 0]] has eigenvalues +- i w. With exact entries a
+    # tiny w is still a center; when the entries are uncertain by more than w (terms of
+    # size 1 that cancel to w), both parts count as zero: non-hyperbolic, in 2 and 3 dims
     tiny = 1e-10
     rot2 = np.array([[0.0, tiny], [-tiny, 0.0]])
+    assert _names(classify(rot2[None])) == [("center", "undetermined")]
     rot3 = np.zeros((3, 3))
     rot3[:2, :2] = rot2
     rot3[2, 2] = -1.0
     for mat in (rot2, rot3):
-        result = classify(mat[None])
+        sizes = np.maximum(np.abs(mat), 1.0)
+        result = classify(mat[None], sizes[None])
         assert _names(result) == [("non-hyperbolic", "undetermined")]
         assert not result.oscillatory[0]
+
+
+@pytest.mark.parametrize("dim", [1, 2, 3, 4, 6])
+def test_classes_do_not_depend_on_the_units(dim):
+    # common practice, no source: a physical result does not depend on its units.
+    # Rescaling time by t and each state by d_i turns J into t * D J D^-1 (a similarity,
+    # same eigenvalues up to the factor t) and the entries' term sizes alike; the class
+    # must not change. Spectra spread over many decades (stiff models) included.
+    rng = np.random.default_rng(dim)
+    n = 400
+    spread = 10.0 ** rng.uniform(-6, 6, (n, dim))
+    basis = rng.standard_normal((n, dim, dim)) + 2 * np.eye(dim)
+    stack = basis @ (spread[:, :, None] * np.eye(dim) * rng.choice([-1.0, 1.0], (n, 1, dim))) @ np.linalg.inv(basis)
+    stack[: n // 4] = rng.standard_normal((n // 4, dim, dim))
+    sizes = np.abs(stack) * 10.0 ** rng.uniform(0, 3, stack.shape)
+    units = 10.0 ** rng.uniform(-8, 8, (n, dim))
+    time = 10.0 ** rng.uniform(-8, 8, (n, 1, 1))
+    similar = time * units[:, :, None] * stack / units[:, None, :]
+    scaled_sizes = time * units[:, :, None] * sizes / units[:, None, :]
+    before, after = classify(stack, sizes), classify(similar, scaled_sizes)
+    np.testing.assert_array_equal(before.class_code, after.class_code)
+    np.testing.assert_array_equal(before.stability_code, after.stability_code)
 
 
 def test_pure_imaginary_pairs_beyond_two_dimensions_are_not_centers():

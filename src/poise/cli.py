@@ -157,9 +157,13 @@ def _quiet_threads_after_interrupt():
 def _check(args) -> int:
     from poise.describe import describe_model, describe_text
     from poise.study.loader import load_study
+    from poise.model import compile_model
+    from poise.model.spread import spread_note
     study = load_study(args.study)
     _warn(study.warnings)
     description = describe_model(study)
+    note = spread_note(study, compile_model(study))
+    _warn((note,) if note else ())
     print(json.dumps(description, indent=2) if args.json else describe_text(study, description))
     return 0
 

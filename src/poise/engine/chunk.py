@@ -13,7 +13,8 @@ import numpy as np
 import pandas as pd
 
 from poise.equilibria.continuum import on_continuum
-from poise.equilibria.finder import ZERO_TOLERANCE, FoundStates, find_steady_states
+from poise.equilibria.limits import beyond_limits
+from poise.equilibria.finder import FoundStates, find_steady_states
 from poise.model import CompiledModel
 from poise.stability.classify import CLASS_NAMES, Classification, classify
 from poise.study.spec import Study
@@ -49,16 +50,21 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
     if solver_method == "homotopy":
         from poise.equilibria.choice import polynomial_system
         from poise.equilibria.continuation import find_by_homotopy, hub_parameters
-        found = find_by_homotopy(model.kernels, polynomial_system(model), params, model.magnitude(params),
+        found = find_by_homotopy(model.kernels, polynomial_system(model), params,
                                  model.domain_low, model.domain_high,
                                  hubs=hub_parameters(study.uncertain, model.varying), **newton_settings)
     else:
-        found = find_steady_states(model.kernels, params, model.magnitude(params),
-                                   model.domain_low, model.domain_high, **newton_settings)
+        from poise.equilibria.continuation import hub_parameters
+        from poise.equilibria.hub_starts import HUBS, hubs_for
+        hubs = hubs_for(model.kernels, hub_parameters(study.uncertain, model.varying, count=HUBS),
+                        model.domain_low, model.domain_high, **newton_settings)
+        found = find_steady_states(model.kernels, params, model.domain_low, model.domain_high, hubs=hubs,
+                                   **newton_settings)
     jacobians = model.kernels.jacobian(found.free, params[found.owner])
-    classes = classify(jacobians)
+    sizes = _jacobian_terms(model, found, params)
+    classes = classify(jacobians, sizes)
     continuum = on_continuum(model.kernels, found.free, params[found.owner], jacobians,
-                             _real_zero_eigenvalue(classes, jacobians))
+                             classes.zero_eigenvalue)
     if continuum.any():
         # A continuum yields as many "steady states" as starts that reached it: keep one
         # representative per set and label (which states are zero, positive, negative).
@@ -67,8 +73,16 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
         found = FoundStates(owner=found.owner[keep], free=found.free[keep], full=found.full[keep],
                             ok=found.ok, reason=found.reason)
         jacobians, continuum = jacobians[keep], continuum[keep]
-        classes = classify(jacobians)
+        sizes = None if sizes is None else sizes[keep]
+        classes = classify(jacobians, sizes)
     ok, reason = _mark_bad_jacobians(found, jacobians)
+    limits = beyond_limits(model.kernels, found.free, found.full, params[found.owner], jacobians,
+                           classes.eigenvalues, classes.class_code < CLASS_NAMES.index("center"),
+                           model.nonlinear)
+    for row in np.flatnonzero(limits != ""):
+        if ok[found.owner[row]]:
+            ok[found.owner[row]] = False
+            reason[found.owner[row]] = limits[row]
 
     equilibria = _equilibria_table(study, found, classes, sample_ids)
     equilibria.insert(equilibria.columns.get_loc("oscillatory") + 1, "continuum", continuum)
@@ -78,14 +92,12 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
                        jacobians=jacobians[keep])
 
 
-def _real_zero_eigenvalue(classes: Classification, jacobians: np.ndarray) -> np.ndarray:
-    """Steady states with a real eigenvalue that is zero within the classifier's tolerance."""
-    if jacobians.shape[1] == 0:
-        return np.zeros(jacobians.shape[0], bool)
-    with np.errstate(invalid="ignore", over="ignore"):
-        tol = 1e-8 * np.maximum(1.0, np.linalg.norm(jacobians, axis=(1, 2)))
-        zero = (np.abs(classes.eigenvalues.real) <= tol[:, None]) & (np.abs(classes.eigenvalues.imag) <= tol[:, None])
-    return zero.any(axis=1)
+def _jacobian_terms(model: CompiledModel, found: FoundStates, params: np.ndarray) -> np.ndarray | None:
+    """Size of the terms of each Jacobian entry at each steady state (the classifier's
+    unit of uncertainty), or None when the kernels do not provide it."""
+    if model.kernels.jacobian_terms is None:
+        return None
+    return model.kernels.jacobian_terms(found.free, params[found.owner])
 
 
 def _mark_bad_jacobians(found: FoundStates, jacobians: np.ndarray):
@@ -166,4 +178,4 @@ def _outcomes_table(study, model, found, classes, sample_ids, params, ok, reason
     return frame
 
 
-__all__ = ["ChunkResult", "analyse_sets", "labels", "ZERO_TOLERANCE"]
+__all__ = ["ChunkResult", "analyse_sets", "labels"]

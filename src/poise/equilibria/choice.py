@@ -108,7 +108,7 @@ def work_estimate(study: Study, model: CompiledModel, system: PolynomialSystem) 
     if hubs is None or probe is None:
         return None
     settings = study.solver
-    newton = newton_work(model.kernels, probe, model.magnitude(probe), model.domain_low, model.domain_high,
+    newton = newton_work(model.kernels, probe, model.domain_low, model.domain_high,
                          starts=settings.starts, deflation_rounds=settings.deflation_rounds,
                          max_iterations=settings.max_iterations)
     try:

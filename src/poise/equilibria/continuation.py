@@ -42,7 +42,7 @@ def hub_parameters(distributions: Mapping[str, Distribution], names: Sequence[st
 
 
 def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndarray,
-                     magnitude: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray,
+                     domain_low: np.ndarray, domain_high: np.ndarray,
                      hubs: np.ndarray | None = None, **newton_settings) -> FoundStates:
     """Every real steady state in the domain for each parameter set (see module doc).
 
@@ -56,7 +56,7 @@ def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndar
         f, jac = kernels.rhs_and_jacobian(x, p)
         d, ok = solve_batch(jac, f)
         x = np.where(ok[:, None], x - d, x)
-    scale = state_scales(kernels, params, magnitude)
+    scale = state_scales(kernels, params)
     f, jac = kernels.rhs_and_jacobian(x, p)
     d, solved = solve_batch(jac, f)
     with np.errstate(invalid="ignore"):
@@ -74,7 +74,7 @@ def find_by_homotopy(kernels: Kernels, system: PolynomialSystem, params: np.ndar
     if retry.size:
         keep = ~np.isin(owner, retry)
         owner, full = owner[keep], full[keep]
-        again = find_steady_states(kernels, params[retry], magnitude[retry], domain_low, domain_high,
+        again = find_steady_states(kernels, params[retry], domain_low, domain_high,
                                    **newton_settings)
         owner = np.concatenate([owner, retry[again.owner]])
         full = np.concatenate([full, again.full])

@@ -2,7 +2,8 @@
 
 1. Multistart: Newton from a grid of starts (up to 3 free states) or a scrambled Sobol
    point set (more states) over a box scaled per set from the model: a conserved total
-   or finite domain limit where one bounds a state, else the parameters' magnitude.
+   or finite domain limit where one bounds a state, else the balance of the model's own
+   terms (`poise.model.scales`).
    Grid levels include exact zeros, where ecological and chemical models keep many of
    their steady states (an iterate started on an invariant face stays on it).
 2. Deflation rounds, for every set with a root in the domain: Newton again with those
@@ -36,12 +37,15 @@ import numpy as np
 from scipy.stats import qmc
 
 from poise.equilibria.linalg import solve_rows
+from poise.equilibria.hub_starts import REDUCED_STARTS, HubRoots, hub_start_points
 from poise.equilibria.newton import newton
+from poise.equilibria.transient import settle
+from poise.equilibria.zeros import inside_domain, snap_zeros
 from poise.model.kernels import Kernels
 
 RESIDUAL_TOLERANCE = 1e-8    # |f_i| relative to the sum of |terms| of f_i
 CORRECTION_TOLERANCE = 1e-9  # or: the next Newton step, relative to |x| + scale
-ZERO_TOLERANCE = 1e-9        # |x_i| relative to the state's scale counts as zero
+ZERO_TOLERANCE = 1e-9        # deflation: roots this close (in scales) to the domain count as inside
 SAME_ROOT = 1e-6             # relative distance under which two roots are one
 DEFLATION_PATIENCE = 6       # deflated runs: iterations without a 10 % smaller step
 MOVE = 0.03                  # deflation starts: roots moved this far (step-size units)
@@ -59,7 +63,7 @@ SOBOL_SEED = 12345
 # with closed-form steady states): fewer levels lose roots, more cost time for nothing.
 LEVELS = {
     1: (0.0, 1e-4, 1e-3, 1e-2, 0.03, 0.1, 0.3, 0.6, 1.0, 2.0, 4.0, 10.0),
-    2: (0.0, 0.3, 3.0),
+    2: (0.0, 0.2, 5.0),
     3: (0.0, 0.1, 1.0),
 }
 TWO_SIDED_LEVELS = {
@@ -117,54 +121,53 @@ def start_points(n: int, lower_open: np.ndarray, starts: int = 0, coarse: bool =
     count = starts or 64 * n
     if coarse:
         count = max(count // 4, 4)
-    unit = qmc.Sobol(n, scramble=True, seed=SOBOL_SEED).random(count)
+    # a power of two of Sobol points, cut to `count` (scipy warns on other sizes)
+    unit = qmc.Sobol(n, scramble=True, seed=SOBOL_SEED).random_base2(int(np.ceil(np.log2(count))))[:count]
     # Log-spaced magnitudes from 1e-3 to 3 times the scale; a quarter of coordinates at zero.
     magnitude = np.where(unit < 0.25, 0.0, 10.0 ** (-3.0 + 3.5 * (unit - 0.25) / 0.75))
     sign = np.where(lower_open & (np.arange(count)[:, None] % 2 == 1), -1.0, 1.0)
     return magnitude * sign
 
 
-def find_steady_states(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray,
-                       domain_low: np.ndarray, domain_high: np.ndarray,
+def find_steady_states(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray,
                        starts: int = 0, deflation_rounds: int = 2,
-                       max_iterations: int = 60) -> FoundStates:
+                       max_iterations: int = 60, hubs: HubRoots | None = None) -> FoundStates:
     """Find every steady state in the domain for each parameter set.
 
     Parameters
     ----------
     kernels : compiled model.
     params : (B, m) varying parameter values.
-    magnitude : (B,) a typical size of the parameters, used where the model gives no
-        bound on a state.
     domain_low, domain_high : (N,) limits for every (full) state.
     starts : number of Sobol starts; 0 chooses a grid from the number of free states.
     deflation_rounds : at most this many deflation rounds per set.
     max_iterations : Newton iterations per start at most.
+    hubs : steady states of hub sets (`poise.equilibria.hub_starts`): each set also
+        starts from its nearest hub's, and needs fewer space-filling starts.
 
     Returns
     -------
     FoundStates
-        Sorted by set, then by state values; states within ZERO_TOLERANCE (relative
-        to the set's scale) of zero are exactly zero. A set where f and J cannot be
+        Sorted by set, then by state values; a state is exactly zero where the model
+        says so (`poise.equilibria.zeros`). A set where f and J cannot be
         evaluated at any start has ok False and a reason.
     """
-    return _find(kernels, params, magnitude, domain_low, domain_high, starts, deflation_rounds,
-                 max_iterations)[0]
+    return _find(kernels, params, domain_low, domain_high, starts, deflation_rounds,
+                 max_iterations, hubs)[0]
 
 
-def newton_work(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray,
-                domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
+def newton_work(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
     """Mean Newton iterations per parameter set that `find_steady_states` spends (over
     all starts and deflation rounds): a machine-independent measure of its work."""
-    _, solve = _find(kernels, params, magnitude, domain_low, domain_high, **settings)
+    _, solve = _find(kernels, params, domain_low, domain_high, **settings)
     return solve.iterations / max(1, params.shape[0])
 
 
-def _find(kernels, params, magnitude, domain_low, domain_high, starts=0, deflation_rounds=2,
-          max_iterations=60):
+def _find(kernels, params, domain_low, domain_high, starts=0, deflation_rounds=2,
+          max_iterations=60, hubs=None):
     """`find_steady_states` and the solver it used (which counts iterations)."""
     batch, n = params.shape[0], kernels.n
-    scale = state_scales(kernels, params, magnitude)                            # (B, n)
+    scale = state_scales(kernels, params)                                       # (B, n)
     free_columns = np.asarray(kernels.free_columns, dtype=int)
     free_low, free_high = domain_low[free_columns], domain_high[free_columns]
     if n == 0:      # every state fixed by conserved totals: one candidate per set
@@ -174,9 +177,24 @@ def _find(kernels, params, magnitude, domain_low, domain_high, starts=0, deflati
                       root_x[evaluable], evaluable), _Solver(kernels, params, scale, max_iterations)
     solve = _Solver(kernels, params, scale, max_iterations)
 
+    if hubs is not None and starts == 0:
+        starts = REDUCED_STARTS * n                   # hub starts stand in for the rest
     grid = start_points(n, free_low < 0, starts)
+    x0 = np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :]
+    valid = np.ones(x0.shape[:2], bool)
+    if hubs is not None:
+        near, real = hub_start_points(hubs, params, scale)
+        x0 = np.concatenate([x0, np.where(real[..., None], near, 0.0)], axis=1)
+        valid = np.concatenate([valid, real], axis=1)
+    if kernels.initial is not None:
+        # the model's own initial state, and where the dynamics from it settle, are starts
+        # too (the hubs' searches followed the dynamics already: their roots carry that)
+        settled = (np.full((batch, n), np.nan) if hubs is not None
+                   else settle(kernels, params, kernels.initial, free_low, free_high))
+        x0 = np.concatenate([x0, np.broadcast_to(kernels.initial, (batch, 1, n)), settled[:, None, :]], axis=1)
+        valid = np.concatenate([valid, np.ones((batch, 1), bool), np.isfinite(settled).all(axis=1)[:, None]], axis=1)
     everyone = np.arange(batch)
-    x, converged, evaluable = solve.run(everyone, np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :])
+    x, converged, evaluable = solve.run(everyone, x0, valid)
     roots = _Roots(scale, free_low, free_high)
     roots.add(everyone, x, converged)
 
@@ -205,14 +223,11 @@ def _found(kernels, params, scale, domain_low, domain_high, root_owner, root_x, 
 
 
 def in_domain(kernels, params, scale, domain_low, domain_high, owner, x):
-    """Full states of roots `x` (free states) of sets `owner`, with values within
-    ZERO_TOLERANCE of zero (relative to the set's scale) made exactly zero, keeping
-    only those inside the domain. Returns (owner, full)."""
-    full = kernels.full_states(x, params[owner])
-    full_scale = _full_scale(full, owner, scale)
-    full = np.where(np.abs(full) <= ZERO_TOLERANCE * full_scale, 0.0, full)
-    inside = ((full >= domain_low - ZERO_TOLERANCE * full_scale)
-              & (full <= domain_high + ZERO_TOLERANCE * full_scale)).all(axis=1)
+    """Full states of roots `x` (free states) of sets `owner`, with zero coordinates made
+    exactly zero (`poise.equilibria.zeros`), keeping only those inside the domain.
+    Returns (owner, full)."""
+    _, full = snap_zeros(kernels, params, owner, x, scale)
+    inside = inside_domain(full, domain_low, domain_high)
     return owner[inside], full[inside]
 
 
@@ -389,18 +404,15 @@ def _slow_directions(kernels, params, known, used, sets, unit, every_axis=False)
     return out, slowness
 
 
-def state_scales(kernels: Kernels, params: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
-    """A typical size per set and free state: a model bound where known, else the
-    parameters' magnitude."""
-    bound = np.abs(kernels.scales(params))
-    fallback = np.maximum(1.0, magnitude)[:, None]
-    return np.where(np.isfinite(bound) & (bound > 0), bound, fallback)
-
-
-def _full_scale(full, owner, scale):
-    """Scale for every state: the largest scale of its set's free states (an eliminated
-    state is a combination of them and a total)."""
-    return np.broadcast_to(scale[owner].max(axis=1, initial=1.0)[:, None], full.shape)
+def state_scales(kernels: Kernels, params: np.ndarray) -> np.ndarray:
+    """A typical size per set and free state (`poise.model.scales`): a conserved total
+    or finite domain limit where one bounds the state, else the balance of the model's
+    own terms. Never taken from the parameters' values as such, so it follows the
+    model's units."""
+    if kernels.sizes is None:
+        return np.ones((params.shape[0], kernels.n))
+    size = np.abs(kernels.sizes(params))
+    return np.where(np.isfinite(size) & (size > 0), size, 1.0)
 
 
 def _verified(kernels: Kernels, roots: _Roots, params: np.ndarray, scale: np.ndarray):

@@ -88,6 +88,7 @@ import numpy as np
 import sympy
 
 from poise.equilibria import tracker
+from poise.equilibria.balance import balance, rescale
 from poise.equilibria.merge import coincident, unique_sorted
 from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
@@ -676,7 +677,7 @@ _HUB_NOISE = 0.1
 @dataclass(frozen=True, eq=False)
 class _Hubs:
     coefficients: np.ndarray  # (H, q, K) complex: start coefficients of each hub
-    anchor: np.ndarray        # (H, q*K) real: the hub's normalised coefficients
+    anchor: np.ndarray        # (H, q*K) real: where the hub sits (`_hub_key`)
     roots: np.ndarray         # (H, R, n+1): every root at the start coefficients
     weight: np.ndarray        # (n+1,) typical size of each coordinate at the hubs' roots
     infinite: np.ndarray      # (H,) paths that diverge from the hub to its own real system
@@ -685,6 +686,9 @@ class _Hubs:
     params: np.ndarray | None = None
     # `tracker.start_factors` at every root of every hub (set by `_hub_start`)
     factors: tuple | None = None
+    # (H, n) log of each hub's state units (`poise.equilibria.balance`): a hub and every
+    # target reached from it are solved in these units
+    log_units: np.ndarray | None = None
 
 
 @lru_cache(maxsize=8)
@@ -705,12 +709,15 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     coef = comp.coefficients(params)
     with np.errstate(all="ignore"):
         usable = np.isfinite(coef).all(axis=(1, 2)) & ~(coef == 0).all(axis=2).any(axis=1)
-        anchor = coef[usable] / np.abs(coef[usable]).max(axis=2, keepdims=True)
+    exps = comp.table.exponents
+    units = _shared_units(balance(exps, comp.table.live, coef[usable]))
+    keys = _hub_key(coef[usable])
+    anchor = rescale(exps, coef[usable], units)
     hubs = None
     if len(start.roots) and len(anchor) and comp.family is not None:
-        hubs = _parameter_hubs(comp, start, params[usable], anchor, seed)
+        hubs = _parameter_hubs(comp, start, params[usable], anchor, units, keys, seed)
     if hubs is None:
-        hubs = _coefficient_hubs(comp, start, anchor, seed)
+        hubs = _coefficient_hubs(comp, start, anchor, units, keys, seed)
     if not hubs.roots.size:
         return hubs
     exps, live = comp.table.arrays()
@@ -720,13 +727,34 @@ def _hub_start(system: PolynomialSystem, seed: int, values: bytes, count: int) -
     return dataclasses.replace(hubs, factors=factors)
 
 
-def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: int) -> _Hubs:
-    """Hubs at each hub's normalised coefficients plus relative complex noise."""
+# a hub whose own units differ from the hubs' common units by more than this factor (in
+# some state) keeps its own units for that state
+_OWN_UNITS_BEYOND = np.log(1e3)
+
+
+def _shared_units(own: np.ndarray) -> np.ndarray:
+    """Units for each hub's solve, from each hub's own (balanced) log units (H, n): the
+    median over the hubs wherever a hub's own are within a factor 1e3 of it, else the
+    hub's own. Paths are shorter when neighbouring hubs share units (measured with
+    benchmarks/bench_homotopy.py: toggle switch 87 -> 74 evaluations per set), and a
+    hub far out (a root of 1e200 where the others are near 1) still gets units in which
+    its roots are of order one. Ratios of units do not depend on the model's units, so
+    neither does this choice."""
+    if not len(own):
+        return own
+    common = np.median(own, axis=0)
+    return np.where(np.abs(own - common) > _OWN_UNITS_BEYOND, own, common)
+
+
+def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, units: np.ndarray,
+                      keys: np.ndarray, seed: int) -> _Hubs:
+    """Hubs at each hub's normalised coefficients (in its own units) plus relative
+    complex noise."""
     q, K = comp.table.live.shape
     R, nv = start.roots.shape
     if R == 0 or not len(anchor):
         return _Hubs(np.zeros((0, q, K), complex), np.zeros((0, q * K)), np.zeros((0, R, nv), complex),
-                     np.ones(nv), np.zeros(0, dtype=int))
+                     np.ones(nv), np.zeros(0, dtype=int), log_units=np.zeros((0, nv - 1)))
     rng = np.random.default_rng([seed, 1989])
     noise = np.where(comp.table.live, _complex_normal(rng, (len(anchor), q, K)), 0)
     # relative noise keeps each coefficient's own scale (small coefficients set where
@@ -734,33 +762,35 @@ def _coefficient_hubs(comp: _Compiled, start: _Start, anchor: np.ndarray, seed: 
     # equation's smallest nonzero one
     size = np.abs(anchor)
     smallest = np.where(size > 0, size, np.inf).min(axis=2, keepdims=True)
-    hub_coef = anchor + _HUB_NOISE * noise * np.where(size > 0, size, smallest)
+    hub_coef = anchor + _HUB_NOISE * noise * np.where(size > 0, size, smallest * 0.1)
     roots, whole = _roots_at(comp, start, hub_coef)
-    hub_coef, anchor = hub_coef[whole], anchor[whole]
+    hub_coef, anchor, units, keys = hub_coef[whole], anchor[whole], units[whole], keys[whole]
     weight = _typical_size(roots.reshape(-1, nv))
     # how many paths diverge on the way from each hub to its own (real) system: targets
     # near the hub should lose no more than that many to infinity
     own = _line(comp.table, start.chart, anchor.astype(complex), hub_coef, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), q * K), roots=roots,
-                 weight=weight, infinite=_diverging(own, roots))
+    return _Hubs(coefficients=hub_coef, anchor=keys, roots=roots,
+                 weight=weight, infinite=_diverging(own, roots), log_units=units)
 
 
 def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: np.ndarray,
-                    seed: int) -> _Hubs | None:
-    """Hubs at each hub's parameters plus relative complex noise, or None when that does
-    not save paths (or the family's generic roots are not all simple)."""
+                    units: np.ndarray, keys: np.ndarray, seed: int) -> _Hubs | None:
+    """Hubs at each hub's parameters plus relative complex noise (coefficients in the
+    hub's own units), or None when that does not save paths (or the family's generic
+    roots are not all simple)."""
     nv = start.roots.shape[1]
     rng = np.random.default_rng([seed, 1993])
     scale = np.where(params != 0, params, 1.0)
     hub_params = params + _HUB_NOISE * scale * _complex_normal(rng, params.shape)
+    exps = comp.table.exponents
     with np.errstate(all="ignore"):
         hub_coef = comp.family.evaluate(hub_params)
         size = np.abs(hub_coef).max(axis=2, keepdims=True)
-        hub_coef = hub_coef / size
+        hub_coef = rescale(exps, hub_coef, units)
     ok = np.isfinite(hub_coef).all(axis=(1, 2)) & (size[..., 0] > 0).all(axis=1)
     if not ok.any():
         return None
-    hub_params, hub_coef, anchor = hub_params[ok], hub_coef[ok], anchor[ok]
+    hub_params, hub_coef, anchor, units, keys = hub_params[ok], hub_coef[ok], anchor[ok], units[ok], keys[ok]
     roots, clean = _roots_at(comp, start, hub_coef, keep_partial=True)
     counts = np.array([len(r) for r in roots])
     R = int(counts[clean].max(initial=0))
@@ -770,15 +800,14 @@ def _parameter_hubs(comp: _Compiled, start: _Start, params: np.ndarray, anchor: 
     if R == 0 or R >= len(start.roots) or kept.sum() < len(counts) / 2:
         return None
     roots = np.stack([roots[i] for i in np.flatnonzero(kept)])
-    hub_params, hub_coef, anchor = hub_params[kept], hub_coef[kept], anchor[kept]
+    hub_params, hub_coef, anchor, units, keys = (hub_params[kept], hub_coef[kept], anchor[kept], units[kept],
+                                                 keys[kept])
     weight = _typical_size(roots.reshape(-1, nv))
     real = params[ok][kept]
-    C = along_line(comp.family, real, hub_params)
-    with np.errstate(all="ignore"):
-        C = C / np.abs(C[..., 0]).max(axis=2, keepdims=True)[..., None]
+    C = rescale(exps, along_line(comp.family, real, hub_params), units)
     own = _Homotopy(comp.table, start.chart, C, weight)
-    return _Hubs(coefficients=hub_coef, anchor=anchor.reshape(len(anchor), anchor[0].size), roots=roots,
-                 weight=weight, infinite=_diverging(own, roots), params=hub_params)
+    return _Hubs(coefficients=hub_coef, anchor=keys, roots=roots,
+                 weight=weight, infinite=_diverging(own, roots), params=hub_params, log_units=units)
 
 
 def _roots_at(comp: _Compiled, start: _Start, coef: np.ndarray, keep_partial: bool = False):
@@ -821,21 +850,35 @@ def _typical_size(points: np.ndarray) -> np.ndarray:
     return np.maximum(size, 1e-8 * size.max())
 
 
-# coefficients (relative to their equation's largest) below this count as zero when
-# hubs are compared with a target in log scale
-_LOG_FLOOR = 1e-8
-
-
-def _log_scale(coef: np.ndarray) -> np.ndarray:
-    """Signed log of normalised coefficients, for choosing the nearest hub.
+def _hub_key(coef: np.ndarray) -> np.ndarray:
+    """Where each real system (B, q, K) sits, for choosing the nearest hub: the logarithm
+    of each coefficient's size, centred per equation (an equation's common factor does
+    not move its roots), and its sign.
 
     Roots move with the *relative* change of a coefficient: halving a coefficient of
-    1e-4 matters as much as halving one of 1, and Euclidean distance between the raw
-    normalised coefficients would see only the latter. Choosing hubs in this scale
-    shortened the paths of the bundled toggle switch from about 38 to 15 evaluations each
-    (benchmarks/bench_homotopy.py).
+    1e-4 matters as much as halving one of 1 (choosing hubs by relative change cut the
+    bundled toggle switch's paths from about 38 to 15 evaluations each,
+    benchmarks/bench_homotopy.py). No floor: a coefficient 1e-170 times its equation's
+    largest still tells hubs apart (a floor made every such hub look alike, and a target
+    solved in the units of a hub 1e140 away lost its root). Rewriting a state in other
+    units shifts the logarithms of target and hub alike, so the choice does not depend
+    on units.
     """
-    return np.sign(coef) * np.log1p(np.abs(coef) / _LOG_FLOOR)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logs = np.log(np.abs(coef))
+        known = np.isfinite(logs)
+        mean = np.where(known, logs, 0.0).sum(axis=2, keepdims=True) / np.maximum(known.sum(axis=2, keepdims=True), 1)
+        centred = np.where(known, logs - mean, 0.0)
+    sign = np.sign(coef) * _SIGN_WEIGHT
+    return np.concatenate([centred.reshape(len(coef), -1), sign.reshape(len(coef), -1)], axis=1)
+
+
+# weight of a coefficient's sign against the logarithm of its size when hubs are compared
+_SIGN_WEIGHT = 20.0
+# a target whose own balanced units differ from its hub's by more than this factor in
+# some state is flagged (status 1) and solved again by Newton: its roots would be far
+# from order one in the hub's units
+_UNITS_APART = np.log(1e6)
 
 
 def _nearest(points: np.ndarray, anchors: np.ndarray) -> np.ndarray:
@@ -873,27 +916,35 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
     if R == 0 or sets.size == 0:
         return np.full((b, 0, n), np.nan), np.zeros(b, dtype=int), status, message, np.zeros(b, np.int64)
 
-    # scale each equation to unit largest coefficient: same roots, better-balanced path
-    target = coef[sets]
-    scale = 1.0 / np.abs(target).max(axis=2, keepdims=True)
-    target = target * scale
-    C0 = target.astype(complex)
+    # each target is solved in units where its coefficients balance (`balance`): those
+    # of the hub it starts from, whose roots are known there; each equation scaled to
+    # unit largest coefficient (same roots, better-balanced path)
+    exps = comp.table.exponents
     if hubs is not None and len(hubs.roots):
-        near = _nearest(_log_scale(target.reshape(sets.size, -1)), _log_scale(hubs.anchor))
+        near = _nearest(_hub_key(coef[sets]), hubs.anchor)
+        units = hubs.log_units[near]
+        apart = (np.abs(balance(exps, comp.table.live, coef[sets]) - units) > _UNITS_APART).any(axis=1)
+        for j in np.flatnonzero(apart & (status[sets] == 0)):
+            status[sets[j]] = 1
+            message[sets[j]] = "roots far from the sizes at every hub; solved again by Newton"
+        target = rescale(exps, coef[sets], units)
         R = hubs.roots.shape[1]
         if hubs.params is not None:  # along a line in parameter space
-            C = along_line(comp.family, values[sets], hubs.params[near]) * scale[..., None]
+            C = rescale(exps, along_line(comp.family, values[sets], hubs.params[near]), units)
             hom = _Homotopy(comp.table, start.chart, C, hubs.weight)
         else:
-            hom = _line(comp.table, start.chart, C0, hubs.coefficients[near], hubs.weight)
+            hom = _line(comp.table, start.chart, target.astype(complex), hubs.coefficients[near], hubs.weight)
         hom = dataclasses.replace(hom, origins=hubs.factors)
         X = hubs.roots[near].reshape(sets.size * R, -1)
         origin = (near[:, None] * R + np.arange(R)).ravel()
         expected = hubs.infinite[near]
     else:
+        units = balance(exps, comp.table.live, coef[sets])
+        target = rescale(exps, coef[sets], units)
         expected = origin = None
-        hom = _line(comp.table, start.chart, C0, start.cstar[None])
+        hom = _line(comp.table, start.chart, target.astype(complex), start.cstar[None])
         X = np.tile(start.roots, (sets.size, 1))
+    den_units = rescale(comp.denominator_table.exponents, den[sets], units) if den.shape[1] else den[sets]
     group = np.repeat(np.arange(sets.size), R)
     end, state, cond, jumped, work = _track_all(hom, X, group, per_group=R,
                                                 expected_infinite=expected, origin=origin)
@@ -958,11 +1009,11 @@ def _solve_chunk(comp: _Compiled, start: _Start, values: np.ndarray, hubs: _Hubs
                             "steady states may be missing")
 
     pts, ok, sing, spread = _polish_real(comp.table, points, target[owner], point_cond)
-    keep = ok & _off_poles(comp, pts, den[sets][owner], sing)
+    keep = ok & _off_poles(comp, pts, den_units[owner], sing)
     roots, counts = unique_sorted(pts[keep], sing[keep], owner[keep], sets.size, second[keep], spread[keep])
 
     out = np.full((b, roots.shape[1], n), np.nan)
-    out[sets] = roots
+    out[sets] = roots * np.exp(units)[:, None, :]   # back to the model's units
     all_counts = np.zeros(b, dtype=int)
     all_counts[sets] = counts
     all_work = np.zeros(b, dtype=np.int64)

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Mapping, Sequence
 
 import numpy as np
 
 from poise.model.kernels import Kernels, compile_kernels
+from poise.model.scales import scale_kernels
 from poise.model.system import ReducedSystem, check_conservation, reduce
 from poise.study.spec import Study
 
@@ -16,9 +19,7 @@ from poise.study.spec import Study
 class CompiledModel:
     """A study's model with fixed values substituted, ready for batches.
 
-    `varying` names the columns of the parameter arrays the kernels take;
-    `fixed_magnitude` is the largest |value| among the substituted parameters, used to
-    scale solver starts.
+    `varying` names the columns of the parameter arrays the kernels take.
     """
 
     system: ReducedSystem
@@ -36,11 +37,11 @@ class CompiledModel:
     def dimension(self) -> int:
         return self.kernels.n
 
-    def magnitude(self, params: np.ndarray) -> np.ndarray:
-        """A typical parameter size per set: the largest |value| of any parameter."""
-        fixed = max((abs(v) for v in self.fixed_values.values()), default=0.0)
-        varying = np.abs(params).max(axis=1, initial=0.0) if params.size else np.zeros(params.shape[0])
-        return np.maximum(fixed, np.nan_to_num(varying, nan=0.0, posinf=0.0))
+    @cached_property
+    def nonlinear(self) -> bool:
+        """Whether some equation is nonlinear in the states (its Jacobian depends on them)."""
+        states = set(self.system.free_symbols)
+        return any(expr.free_symbols & states for expr in self.system.jacobian)
 
 
 def compile_model(study: Study, values: Mapping[str, float] | None = None,
@@ -52,7 +53,7 @@ def compile_model(study: Study, values: Mapping[str, float] | None = None,
     fixed_values = {k: float(v) for k, v in values.items() if k not in varying}
     system = reduce(study, fixed_values, varying)
     _check_real(study, system)
-    kernels = compile_kernels(system)
+    kernels = dataclasses.replace(compile_kernels(system), **scale_kernels(system, study.initial))
     low = np.array([study.domain[s][0] for s in study.states])
     high = np.array([study.domain[s][1] for s in study.states])
     return CompiledModel(system=system, kernels=kernels, varying=varying,

@@ -17,6 +17,7 @@ import sympy
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.precedence import PRECEDENCE
 
+from poise.model.magnitudes import absolute_form
 from poise.model.system import ReducedSystem
 
 _MIN = sympy.Function("poise_min")
@@ -44,6 +45,13 @@ class Kernels:
     # (n + n*n, K) array out (f, then J row by row). Contiguous rows keep the many
     # elementwise operations of a Newton step cache-friendly.
     rhs_and_jacobian_rows: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    # Scale-aware helpers (`poise.model.scales`): typical state sizes P -> (B, n), and the
+    # size of the terms of each Jacobian entry (B, n, n) and of each full state (B, N).
+    sizes: Callable[[np.ndarray], np.ndarray] | None = None
+    jacobian_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    full_terms: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None
+    # the model's own initial state (SBML), free states (n,), when it gives one: a start
+    initial: np.ndarray | None = None
 
 
 def compile_kernels(system: ReducedSystem) -> Kernels:
@@ -54,7 +62,7 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     n, m = len(x), len(p)
     rhs = list(system.rhs)
     jac = _lazy(lambda: list(system.jacobian) if n else [])  # seconds on large models
-    terms = lambda: [sum(sympy.Abs(t) for t in sympy.Add.make_args(f)) for f in rhs]  # noqa: E731
+    terms = lambda: [absolute_form(f) for f in rhs]  # noqa: E731
     state_symbols = {s: sympy.Symbol(s, real=True) for s in system.states}
     full = [system.eliminated.get(s, state_symbols[s]) for s in system.states]
     scale_exprs = [system.scales[s] if system.scales[s] is not None else sympy.nan for s in system.free]
@@ -125,7 +133,7 @@ def _lazy(build: Callable[[], Callable]) -> Callable[[], Callable]:
 def _real(value):
     """A complex value (log or power of a negative number) is no real rate: NaN, so the
     set is recorded as failed instead of silently losing the imaginary part."""
-    if np.iscomplexobj(value):
+    if isinstance(value, np.ndarray) and value.dtype.kind == "c" or isinstance(value, complex):
         value = np.where(np.imag(value) == 0, np.real(value), np.nan)
     return value
 

@@ -191,7 +191,10 @@ def _scales(study: Study, laws, substitution) -> dict[str, sympy.Expr | None]:
     for state in study.states:
         bound = None
         for law, total in zip(laws, study.conserved):
-            if state in law and all(c > 0 for c in law.values()):
+            # c . x = T with every c >= 0 over states that cannot be negative: x <= T / c
+            present = {s: c for s, c in law.items() if c != 0}
+            if (present.get(state, 0) > 0 and all(c > 0 for c in present.values())
+                    and all(study.domain[s][0] >= 0 for s in present)):
                 bound = (sympy.Symbol(total, real=True) / law[state]).subs(substitution)
                 break
         low, high = study.domain[state]

@@ -63,11 +63,13 @@ def completeness_words(run: RunData) -> str | None:
         lo, hi = (float(x) for x in check["ci95"])
     except (KeyError, TypeError, ValueError):
         return None
+    note = str(check.get("note") or "")
     if not checked:
-        return None
+        return f"no completeness check: {note}" if note else None
     return (f"{missed} of {checked} re-solved sets had a steady state the run missed "
             f"({100 * missed / checked:.1f} %, 95 % Wilson interval {100 * lo:.1f} to "
-            f"{100 * hi:.1f} %); reference: {check.get('reference', 'not recorded')}")
+            f"{100 * hi:.1f} %); reference: {check.get('reference', 'not recorded')}"
+            + (f" ({note})" if note else ""))
 
 
 def software_versions(run: RunData) -> list[tuple[str, str]]:
@@ -166,7 +168,11 @@ def _finder_paragraph(run: RunData) -> list:
 _CLASSIFY = ("Each steady state was classified from the eigenvalues of the model's Jacobian "
              "there, on the conservation class where totals are conserved: stable when every "
              "eigenvalue has a negative real part, unstable when one has a positive real "
-             "part; real parts within 1e-8 max(1, ‖J‖) of zero count as zero, and a steady "
+             "part. A real or imaginary part counts as zero when it lies within how far the "
+             "eigenvalue can move if each Jacobian entry is off by 1e-9 of the size of its terms "
+             "(first-order perturbation bound with the left and right eigenvectors, capped for "
+             "nearly defective eigenvalues), a rule that does not depend on the units of time or "
+             "of the states; a steady "
              "state with such an eigenvalue and none with a positive real part is reported as "
              "undetermined. Node, focus and saddle follow from the signs and imaginary parts. "
              "This linear classification is local: it describes small disturbances near each "

@@ -79,6 +79,9 @@ class Classification:
         Some eigenvalue is complex beyond the tolerance.
     trace, determinant, discriminant : ndarray of float, shape (B,)
         ``T``, ``D`` and ``T**2 - 4*D`` for ``d == 2``; NaN otherwise.
+    zero_eigenvalue : ndarray of bool, shape (B,)
+        Some real eigenvalue is zero within its uncertainty (the steady state may lie
+        on a continuum).
     """
 
     eigenvalues: np.ndarray
@@ -89,6 +92,7 @@ class Classification:
     trace: np.ndarray
     determinant: np.ndarray
     discriminant: np.ndarray
+    zero_eigenvalue: np.ndarray | None = None
 
     @property
     def class_names(self) -> np.ndarray:
@@ -144,7 +148,8 @@ def eigenvalues(jacobians: np.ndarray) -> np.ndarray:
     return _spectrum(_as_stack(jacobians)).eigenvalues()
 
 
-def classify(jacobians: np.ndarray, rtol: float = 1e-8) -> Classification:
+def classify(jacobians: np.ndarray, term_sizes: np.ndarray | None = None,
+             rtol: float = 1e-9) -> Classification:
     """Classify steady states from their Jacobians.
 
     Rules (design.md, "Classification rules"): all ``Re lambda < 0`` is a stable node,
@@ -159,16 +164,24 @@ def classify(jacobians: np.ndarray, rtol: float = 1e-8) -> Classification:
     state itself, so every admissible perturbation is zero and stays zero; the
     rules above agree, as "all eigenvalues negative" holds vacuously.
 
+    "Zero" is judged against what the entries of J can be trusted to: each entry is
+    uncertain by ``rtol`` times the size of its terms (`term_sizes`, the sum of the
+    absolute values of the terms that make it up, which may cancel; default ``|J|``).
+    That uncertainty ``E`` moves an eigenvalue by at most (to first order)
+    ``|y|^T E |x| / |y^H x|`` for its right and left eigenvectors x, y, and by
+    about ``sqrt(rho(E J))`` where it is (nearly) defective; a real or imaginary part
+    within that is zero (see the module notes). Both bounds change with the units of
+    time and of each state exactly as the eigenvalues do, so the class never depends
+    on the units a model is written in.
+
     Parameters
     ----------
     jacobians : array_like, shape (B, d, d)
         Real Jacobians, restricted to the conservation class.
-    rtol : float, default 1e-8
-        Relative tolerance.  With ``tol = rtol * max(1, ||J||_F)`` per matrix, a real
-        part counts as zero when ``|Re lambda| <= tol``; an eigenvalue counts as complex
-        when ``|Im lambda| > tol`` and ``Im**2 > rtol * (Re**2 + |lambda|**2)`` (for
-        ``d == 2`` this reads ``-disc > rtol * (T**2 + 4*|D|)``), so a repeated real
-        eigenvalue split by rounding stays real.
+    term_sizes : array_like, shape (B, d, d), optional
+        Size of the terms of each entry (``>= |J|``); default ``|J|``.
+    rtol : float, default 1e-9
+        Relative uncertainty of an entry, in units of its term size.
 
     Returns
     -------
@@ -185,20 +198,27 @@ def classify(jacobians: np.ndarray, rtol: float = 1e-8) -> Classification:
     dim = stack.shape[1]
     spec = _spectrum(stack)
     re, im, scale = spec.re, spec.im, spec.scale
+    sizes = np.abs(stack) if term_sizes is None else np.maximum(np.abs(stack), np.asarray(term_sizes, float))
+    with np.errstate(all="ignore"):
+        error = np.where(np.isfinite(sizes), rtol * sizes, 0.0) / scale[:, None, None]
+    unit = stack / scale[:, None, None]
 
-    tol = rtol * np.maximum(1.0 / scale, spec.norm)          # in units of J / scale
     if dim == 2:
-        # the pair shares one verdict, decided on the discriminant (see module doc)
-        neg_disc = -spec.disc
-        some_complex = ((neg_disc > 4.0 * tol ** 2)
-                        & (neg_disc > rtol * (spec.trace ** 2 + 4.0 * np.abs(spec.det))))
+        neg, pos, zero, some_complex, zero_eig = _verdict2(unit, error, spec)
     else:
-        some_complex = ((np.abs(im) > tol)
-                        & (im * im > rtol * (2.0 * re * re + im * im))).any(axis=0)
-
-    neg = re < -tol
-    pos = re > tol
-    zero = ~(neg | pos)
+        if dim == 1:
+            bound = error[:, 0, 0][None]
+        elif dim >= 3:
+            re, im, bound = _spectrum_with_uncertainty(unit, error, spec.finite)
+            re[:, ~spec.finite] = np.nan
+            im[:, ~spec.finite] = np.nan
+        else:
+            bound = np.zeros((0, unit.shape[0]))
+        neg, pos = re < -bound, re > bound
+        zero = ~(neg | pos)
+        imaginary = np.abs(im) > bound
+        some_complex = imaginary.any(axis=0)
+        zero_eig = (zero & ~imaginary).any(axis=0)
     all_neg = neg.all(axis=0)                       # vacuously true for d == 0
     all_pos = pos.all(axis=0)                       # d == 0: all_neg wins below
     center = zero.all(axis=0) & some_complex & (dim == 2)
@@ -218,16 +238,116 @@ def classify(jacobians: np.ndarray, rtol: float = 1e-8) -> Classification:
         stability_code[bad] = _UNDETERMINED
         margin[bad] = np.nan
         oscillatory[bad] = False
+        zero_eig[bad] = False
     # NaN unless d == 2 (set so by _spectrum)
     with np.errstate(over="ignore"):
         trace = spec.trace * scale
         det = spec.det * scale ** 2
         disc = spec.disc * scale ** 2
 
-    return Classification(eigenvalues=spec.eigenvalues(), class_code=class_code,
+    lam = np.empty(re.shape[::-1], dtype=complex)
+    lam.real, lam.imag = (re * scale).T, (im * scale).T
+    return Classification(eigenvalues=lam, class_code=class_code,
                           stability_code=stability_code, margin=margin,
                           oscillatory=oscillatory, trace=trace, determinant=det,
-                          discriminant=disc)
+                          discriminant=disc, zero_eigenvalue=zero_eig)
+
+
+def _verdict2(unit: np.ndarray, error: np.ndarray, spec: _Spectrum):
+    """Signs for 2x2 matrices from trace, determinant and discriminant, each against
+    its first-order uncertainty from the entries' (componentwise, so unchanged by a
+    diagonal change of units). Returns per eigenvalue (2, B): negative, positive, zero
+    real part; per matrix: some eigenvalue complex, a real eigenvalue zero."""
+    a, b, c, d = unit[:, 0, 0], unit[:, 0, 1], unit[:, 1, 0], unit[:, 1, 1]
+    ea, eb, ec, ed = error[:, 0, 0], error[:, 0, 1], error[:, 1, 0], error[:, 1, 1]
+    with np.errstate(all="ignore"):
+        return _signs2(a, b, c, d, ea, eb, ec, ed, spec)
+
+
+def _signs2(a, b, c, d, ea, eb, ec, ed, spec: _Spectrum):
+    d_trace = ea + ed
+    d_det = np.abs(a) * ed + np.abs(d) * ea + np.abs(b) * ec + np.abs(c) * eb + ea * ed + eb * ec
+    d_disc = 2.0 * np.abs(a - d) * (ea + ed) + 4.0 * (np.abs(b) * ec + np.abs(c) * eb) + (ea + ed) ** 2
+    trace, det, disc = spec.trace, spec.det, spec.disc
+    some_complex = -disc > d_disc
+    saddle = det < -d_det
+    singular = np.abs(det) <= d_det          # a zero eigenvalue
+    negative = trace < -d_trace
+    positive = trace > d_trace
+    # saddle: one eigenvalue of each sign (sorted: the first is the larger)
+    # det > 0: both share the sign of the trace; det ~ 0: one zero, the other ~ trace
+    neg = np.stack([np.where(saddle, False, ~singular & negative),
+                    np.where(saddle, True, negative)])
+    pos = np.stack([np.where(saddle, True, positive),
+                    np.where(saddle, False, ~singular & positive)])
+    zero = ~(neg | pos)
+    return neg, pos, zero, some_complex & ~saddle, singular
+
+
+def _spectrum_with_uncertainty(unit: np.ndarray, error: np.ndarray, finite: np.ndarray):
+    """Eigenvalues (rows (d, B), sorted as `_spectrum` sorts them) of matrices of size
+    d >= 3 and how far each can be off: the first-order effect ``|y|^T E |x|`` of the
+    entries' uncertainty E (right eigenvectors x, rows y of their inverse, so y x = 1)
+    plus LAPACK's own rounding (``eps ||J|| ||x|| ||y||`` on the balanced matrix), the
+    first capped by ``sqrt(rho(E |J|))``, the size of the split of a (nearly) defective
+    eigenvalue. Every term is unchanged by a diagonal change of units (the balanced
+    matrix is, up to powers of two) and scales with the time unit like the eigenvalues."""
+    batch, dim = unit.shape[:2]
+    safe = np.where(finite[:, None, None], unit, 0.0)
+    balanced, error = _balance(safe, error)
+    eps = np.finfo(float).eps
+    with np.errstate(all="ignore"):
+        lam, right = np.linalg.eig(balanced)
+        left = _inverse(right)
+        first = np.einsum("bki,bij,bjk->bk", np.abs(left), error, np.abs(right))
+        condition = np.linalg.norm(left, axis=2) * np.linalg.norm(right, axis=1)
+        rounding = 16.0 * dim * eps * np.linalg.norm(balanced, axis=(1, 2))[:, None] * condition
+        first = np.where(np.isfinite(first), first, np.inf)
+        # a (nearly) defective eigenvalue: its first-order bound blows up, cap it
+        wide = np.flatnonzero((first > np.abs(lam)).any(axis=1))
+        if wide.size:
+            coupled = np.abs(np.linalg.eigvals(error[wide] @ np.abs(balanced[wide]))).max(axis=1)
+            first[wide] = np.minimum(first[wide], np.sqrt(coupled)[:, None])
+            rounding[wide] = np.minimum(rounding[wide], np.sqrt(eps) * np.linalg.norm(
+                balanced[wide], axis=(1, 2))[:, None])
+        bound = first + np.where(np.isfinite(rounding), rounding, 0.0)
+    order = np.lexsort((-lam.imag, -lam.real), axis=-1)
+    lam = np.take_along_axis(lam, order, axis=-1)
+    bound = np.take_along_axis(bound, order, axis=-1)
+    return lam.real.T.copy(), lam.imag.T.copy(), bound.T.copy()
+
+
+def _balance(m: np.ndarray, error: np.ndarray, sweeps: int = 8):
+    """Diagonal similarity by powers of two (exact) equalising each row's and column's
+    off-diagonal size (Osborne's iteration, as LAPACK's balancing does), applied to the
+    matrices and to their entries' uncertainty alike."""
+    m, error = m.copy(), error.copy()
+    for _ in range(sweeps):
+        for i in range(m.shape[1]):
+            column = np.abs(m[:, :, i]).sum(axis=1) - np.abs(m[:, i, i])
+            row = np.abs(m[:, i, :]).sum(axis=1) - np.abs(m[:, i, i])
+            with np.errstate(divide="ignore", invalid="ignore"):
+                f = np.exp2(np.round(0.5 * np.log2(row / column)))
+            f = np.where(np.isfinite(f) & (column > 0) & (row > 0), f, 1.0)
+            m[:, :, i] *= f[:, None]
+            m[:, i, :] /= f[:, None]
+            error[:, :, i] *= f[:, None]
+            error[:, i, :] /= f[:, None]
+    return m, error
+
+
+def _inverse(v: np.ndarray) -> np.ndarray:
+    """Batched inverse; singular matrices give inf (their eigenvalues are defective)."""
+    try:
+        return np.linalg.inv(v)
+    except np.linalg.LinAlgError:
+        out = np.full(v.shape, np.inf, dtype=v.dtype)
+        for i, mat in enumerate(v):
+            try:
+                out[i] = np.linalg.inv(mat)
+            except np.linalg.LinAlgError:
+                pass
+        return out
 
 
 def _as_stack(jacobians) -> np.ndarray:

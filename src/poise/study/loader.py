@@ -392,12 +392,14 @@ def _sensitivity(data: dict, where: _Where) -> SensitivitySettings:
 
 def _solver(data: dict, where: _Where) -> SolverSettings:
     table = _table(data, "solver", where)
-    _no_unknown_keys(table, {"method", "starts", "deflation_rounds", "max_iterations"}, "solver", where)
+    _no_unknown_keys(table, {"method", "starts", "deflation_rounds", "max_iterations", "check_sets"}, "solver", where)
     return SolverSettings(
         method=_choice(table, "method", SolverSettings.method, SOLVER_METHODS, "solver", where),
         starts=_integer(table, "starts", SolverSettings.starts, 0, 10_000, "solver", where),
         deflation_rounds=_integer(table, "deflation_rounds", SolverSettings.deflation_rounds, 0, 20, "solver", where),
         max_iterations=_integer(table, "max_iterations", SolverSettings.max_iterations, 5, 10_000, "solver", where),
+        check_sets=(_integer(table, "check_sets", 0, 0, 100_000, "solver", where) if "check_sets" in table
+                    else SolverSettings.check_sets),
     )
 
 
