@@ -67,6 +67,12 @@ def _rescaled_claim(text: str, state_units: dict[str, float]) -> str:
 
 
 def _number(value: float) -> sympy.Expr:
+    """A power of ten exactly (a Rational), so decimal coefficients and conservation
+    laws stay exact as a user writing the model in those units would have them; any
+    other value as the shortest decimal that reads back as the same double."""
+    exponent = round(math.log10(abs(value))) if value else 0
+    if value and 10.0 ** exponent == abs(value):
+        return (1 if value > 0 else -1) * sympy.Rational(10) ** exponent
     return sympy.Float(repr(float(value)))
 
 

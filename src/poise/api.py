@@ -181,7 +181,7 @@ def run_study(study: Study, out: str | Path | None = None, *, size: int | None =
             samples[name] = params[:, j]
         outcomes, tallies = assemble(directory, manifest, samples)
         summary = _summary(study, outcomes, tallies, design, sobol)
-        summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params)
+        summary["solver"] = _solver_summary(study, model, method, estimate, outcomes, params, progress)
         files = list(OUTPUTS)
         if study.long_run is not None:
             files += _long_run_outputs(directory, study, model, outcomes, params, summary)
@@ -278,20 +278,18 @@ def _long_run_outputs(directory: Path, study: Study, model, outcomes: pd.DataFra
 
 
 def _solver_summary(study: Study, model, method: str, estimate, outcomes: pd.DataFrame,
-                    params: np.ndarray) -> dict:
+                    params: np.ndarray, progress: bool = False) -> dict:
     """Which finder ran, why (for "auto": the work estimate), and, for multistart
     Newton, how often it missed a steady state on a re-solved random subsample
     (homotopy is complete with probability one)."""
     from poise.analysis.completeness import completeness_check
-    from poise.equilibria.choice import polynomial_system
 
     entry = {"method": method, "requested": study.solver.method}
     if estimate is not None:
         entry["choice"] = estimate.as_dict()
     if method == "newton":
-        reference = "homotopy" if polynomial_system(model) is not None else "newton"
-        entry["completeness"] = completeness_check(study, model, outcomes, params, reference,
-                                                   study.sampling.seed)
+        entry["completeness"] = completeness_check(study, model, outcomes, params, study.sampling.seed,
+                                                   progress=progress)
     return entry
 
 

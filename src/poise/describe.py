@@ -28,6 +28,8 @@ def describe_model(study: Study) -> dict:
         "ode": {state: to_text(expr) for state, expr in study.ode.items()},
         "parameters": parameters,
         "conserved": {total: to_text(expr) for total, expr in study.conserved.items()},
+        # where a steady state counts; null for an unbounded side
+        "domain": {s: [v if abs(v) != float("inf") else None for v in study.domain[s]] for s in study.states},
     }
     if study.initial:
         description["initial"] = dict(study.initial)
@@ -46,6 +48,10 @@ def describe_text(study: Study, description: dict) -> str:
     width = max(len(s) for s in study.states)
     for state, text in study.ode_text.items():
         lines.append(f"  d{state:<{width}}/dt = {visible(text)}")   # one line each, whatever was typed
+    lines += ["", "domains (where a steady state counts)"]
+    for state in study.states:
+        low, high = study.domain[state]
+        lines.append(f"  {state:<{width}}  {'(' if low == -float('inf') else '['}{low:g}, {high:g}{')' if high == float('inf') else ']'}")
     if description["conserved"]:
         lines += ["", "conserved totals"]
         for total, text in description["conserved"].items():

@@ -55,7 +55,12 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
                                  model.domain_low, model.domain_high,
                                  hubs=hub_parameters(study.uncertain, model.varying), **newton_settings)
     else:
-        found = find_steady_states(model.kernels, params, model.domain_low, model.domain_high, **newton_settings)
+        from poise.equilibria.continuation import hub_parameters
+        from poise.equilibria.hub_starts import HUBS, hubs_for
+        hubs = hubs_for(model.kernels, hub_parameters(study.uncertain, model.varying, count=HUBS),
+                        model.domain_low, model.domain_high, **newton_settings)
+        found = find_steady_states(model.kernels, params, model.domain_low, model.domain_high, hubs=hubs,
+                                   **newton_settings)
     jacobians = model.kernels.jacobian(found.free, params[found.owner])
     sizes = _jacobian_terms(model, found, params)
     classes = classify(jacobians, sizes)

@@ -37,6 +37,7 @@ import numpy as np
 from scipy.stats import qmc
 
 from poise.equilibria.linalg import solve_rows
+from poise.equilibria.hub_starts import REDUCED_STARTS, HubRoots, hub_start_points
 from poise.equilibria.newton import newton
 from poise.equilibria.transient import settle
 from poise.equilibria.zeros import inside_domain, snap_zeros
@@ -120,7 +121,8 @@ def start_points(n: int, lower_open: np.ndarray, starts: int = 0, coarse: bool =
     count = starts or 64 * n
     if coarse:
         count = max(count // 4, 4)
-    unit = qmc.Sobol(n, scramble=True, seed=SOBOL_SEED).random(count)
+    # a power of two of Sobol points, cut to `count` (scipy warns on other sizes)
+    unit = qmc.Sobol(n, scramble=True, seed=SOBOL_SEED).random_base2(int(np.ceil(np.log2(count))))[:count]
     # Log-spaced magnitudes from 1e-3 to 3 times the scale; a quarter of coordinates at zero.
     magnitude = np.where(unit < 0.25, 0.0, 10.0 ** (-3.0 + 3.5 * (unit - 0.25) / 0.75))
     sign = np.where(lower_open & (np.arange(count)[:, None] % 2 == 1), -1.0, 1.0)
@@ -129,7 +131,7 @@ def start_points(n: int, lower_open: np.ndarray, starts: int = 0, coarse: bool =
 
 def find_steady_states(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray,
                        starts: int = 0, deflation_rounds: int = 2,
-                       max_iterations: int = 60) -> FoundStates:
+                       max_iterations: int = 60, hubs: HubRoots | None = None) -> FoundStates:
     """Find every steady state in the domain for each parameter set.
 
     Parameters
@@ -140,6 +142,8 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, domain_low: np.ndar
     starts : number of Sobol starts; 0 chooses a grid from the number of free states.
     deflation_rounds : at most this many deflation rounds per set.
     max_iterations : Newton iterations per start at most.
+    hubs : steady states of hub sets (`poise.equilibria.hub_starts`): each set also
+        starts from its nearest hub's, and needs fewer space-filling starts.
 
     Returns
     -------
@@ -149,7 +153,7 @@ def find_steady_states(kernels: Kernels, params: np.ndarray, domain_low: np.ndar
         evaluated at any start has ok False and a reason.
     """
     return _find(kernels, params, domain_low, domain_high, starts, deflation_rounds,
-                 max_iterations)[0]
+                 max_iterations, hubs)[0]
 
 
 def newton_work(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, domain_high: np.ndarray, **settings) -> float:
@@ -160,7 +164,7 @@ def newton_work(kernels: Kernels, params: np.ndarray, domain_low: np.ndarray, do
 
 
 def _find(kernels, params, domain_low, domain_high, starts=0, deflation_rounds=2,
-          max_iterations=60):
+          max_iterations=60, hubs=None):
     """`find_steady_states` and the solver it used (which counts iterations)."""
     batch, n = params.shape[0], kernels.n
     scale = state_scales(kernels, params)                                       # (B, n)
@@ -173,14 +177,24 @@ def _find(kernels, params, domain_low, domain_high, starts=0, deflation_rounds=2
                       root_x[evaluable], evaluable), _Solver(kernels, params, scale, max_iterations)
     solve = _Solver(kernels, params, scale, max_iterations)
 
+    if hubs is not None and starts == 0:
+        starts = REDUCED_STARTS * n                   # hub starts stand in for the rest
     grid = start_points(n, free_low < 0, starts)
     x0 = np.broadcast_to(grid, (batch,) + grid.shape) * scale[:, None, :]
+    valid = np.ones(x0.shape[:2], bool)
+    if hubs is not None:
+        near, real = hub_start_points(hubs, params, scale)
+        x0 = np.concatenate([x0, np.where(real[..., None], near, 0.0)], axis=1)
+        valid = np.concatenate([valid, real], axis=1)
     if kernels.initial is not None:
-        # the model's own initial state, and where the dynamics from it settle, are starts too
-        settled = settle(kernels, params, kernels.initial, free_low, free_high)
+        # the model's own initial state, and where the dynamics from it settle, are starts
+        # too (the hubs' searches followed the dynamics already: their roots carry that)
+        settled = (np.full((batch, n), np.nan) if hubs is not None
+                   else settle(kernels, params, kernels.initial, free_low, free_high))
         x0 = np.concatenate([x0, np.broadcast_to(kernels.initial, (batch, 1, n)), settled[:, None, :]], axis=1)
+        valid = np.concatenate([valid, np.ones((batch, 1), bool), np.isfinite(settled).all(axis=1)[:, None]], axis=1)
     everyone = np.arange(batch)
-    x, converged, evaluable = solve.run(everyone, x0)
+    x, converged, evaluable = solve.run(everyone, x0, valid)
     roots = _Roots(scale, free_low, free_high)
     roots.add(everyone, x, converged)
 

@@ -74,7 +74,7 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
     PolynomialSystem or None
         ``None`` when some equation is not a rational function of the states after
         clearing denominators (``exp(x)``, ``x**0.5``, ``x**n`` with symbolic ``n``,
-        ``abs``, ``min``/``max`` of states), and also when an equation vanishes
+        ``abs``, ``min``/``max`` of states, any ``piecewise``), and also when an equation vanishes
         identically (its steady states are not isolated, so no root count exists).
 
     Raises
@@ -94,6 +94,8 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
     if len(equations) != len(states):
         raise ValueError(f"{len(equations)} equations for {len(states)} states")
     allowed = set(states) | set(params)
+    if any(isinstance(e, sympy.Basic) and e.has(sympy.Piecewise) for e in equations):
+        return None  # piecewise: each piece smooth, the whole not one polynomial (Newton's job)
 
     numerators: list[sympy.Expr] = []
     degrees: list[int] = []
@@ -108,7 +110,9 @@ def polynomial_form(equations: Sequence[sympy.Expr], states: Sequence[sympy.Symb
         if not (numerator.is_polynomial(*states) and denominator.is_polynomial(*states)):
             return None
         numerator, denominator = _cancel(numerator, denominator)
-        poly = sympy.Poly(numerator, *states)
+        # only the states it holds as generators: sympy's dense form nests one level per
+        # generator, so hundreds of states (most absent) made this take minutes
+        poly = sympy.Poly(numerator, *[x for x in states if x in numerator.free_symbols] or states[:1])
         if poly.is_zero:
             return None
         numerators.append(poly.as_expr())

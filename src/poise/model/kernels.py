@@ -61,8 +61,8 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     p = system.parameter_symbols
     n, m = len(x), len(p)
     rhs = list(system.rhs)
-    jac = list(system.jacobian) if n else []
-    terms = [absolute_form(f) for f in rhs]
+    jac = _lazy(lambda: list(system.jacobian) if n else [])  # seconds on large models
+    terms = lambda: [absolute_form(f) for f in rhs]  # noqa: E731
     state_symbols = {s: sympy.Symbol(s, real=True) for s in system.states}
     full = [system.eliminated.get(s, state_symbols[s]) for s in system.states]
     scale_exprs = [system.scales[s] if system.scales[s] is not None else sympy.nan for s in system.free]
@@ -73,8 +73,8 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
     full_fn = _vector_kernel(x, p, full)
     scale_fn = _vector_kernel([], p, scale_exprs)
 
-    both_fn = _vector_kernel(x, p, rhs + jac)  # one pass shares common subexpressions
-    rows_fn = _row_kernel(x, p, rhs + jac)
+    both_fn = _vector_kernel(x, p, lambda: rhs + jac())  # one pass shares common subexpressions
+    rows_fn = _row_kernel(x, p, lambda: rhs + jac())
 
     def jacobian(X: np.ndarray, P: np.ndarray) -> np.ndarray:
         return jac_fn(X, P).reshape(X.shape[0], n, n)
@@ -91,18 +91,17 @@ def compile_kernels(system: ReducedSystem) -> Kernels:
 
 
 def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
-    """A function (X (B, n), P (B, m)) -> (B, len(exprs)) evaluating `exprs`."""
-    exprs = [_numeric_friendly(e) for e in exprs]
-    count = len(exprs)
-    if count == 0:
-        return lambda X, P: np.zeros((X.shape[0], 0))
-    function = sympy.lambdify([*x, *p], exprs, modules=[_NUMERIC, "numpy"], cse=True)
+    """A function (X (B, n), P (B, m)) -> (B, len(exprs)) evaluating `exprs` (a list, or
+    a function returning it, called when the kernel is first used)."""
+    function = _lazy(lambda: _lambdify(x, p, exprs))
 
     def kernel(X: np.ndarray, P: np.ndarray) -> np.ndarray:
         batch = X.shape[0]
+        if function() is None:
+            return np.zeros((batch, 0))
         with np.errstate(all="ignore"):
-            values = function(*X.T, *P.T)
-        out = np.empty((batch, count))
+            values = function()(*X.T, *P.T)
+        out = np.empty((batch, len(values)))
         for j, value in enumerate(values):
             out[:, j] = _real(value)
         return out
@@ -110,10 +109,31 @@ def _vector_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray
     return kernel
 
 
+def _lambdify(x, p, exprs, printer=None):
+    listed = [_numeric_friendly(e) for e in (exprs() if callable(exprs) else exprs)]
+    if not listed:
+        return None
+    options = {"printer": printer} if printer else {}
+    return sympy.lambdify([*x, *p], listed, modules=[_NUMERIC, "numpy"], cse=True, **options)
+
+
+def _lazy(build: Callable[[], Callable]) -> Callable[[], Callable]:
+    """Generate a kernel's code on its first use: on a large model (hundreds of Jacobian
+    entries) code generation takes seconds, and `poise check` uses no kernel."""
+    built: list[Callable] = []
+
+    def get() -> Callable:
+        if not built:
+            built.append(build())
+        return built[0]
+
+    return get
+
+
 def _real(value):
     """A complex value (log or power of a negative number) is no real rate: NaN, so the
     set is recorded as failed instead of silently losing the imaginary part."""
-    if np.iscomplexobj(value):
+    if isinstance(value, np.ndarray) and value.dtype.kind == "c" or isinstance(value, complex):
         value = np.where(np.imag(value) == 0, np.real(value), np.nan)
     return value
 
@@ -122,17 +142,14 @@ def _row_kernel(x, p, exprs) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
     """A function (XR (n, K), PR (m, K)) -> (len(exprs), K) evaluating `exprs`, with small
     integer powers written as products (numpy's general power is several times slower
     than a multiplication)."""
-    exprs = [_numeric_friendly(e) for e in exprs]
-    count = len(exprs)
-    if count == 0:
-        return lambda XR, PR: np.zeros((0, XR.shape[1]))
-    function = sympy.lambdify([*x, *p], exprs, modules=[_NUMERIC, "numpy"], cse=True,
-                              printer=_ProductPowerPrinter)
+    function = _lazy(lambda: _lambdify(x, p, exprs, printer=_ProductPowerPrinter))
 
     def kernel(XR: np.ndarray, PR: np.ndarray) -> np.ndarray:
-        out = np.empty((count, XR.shape[1]))
+        if function() is None:
+            return np.zeros((0, XR.shape[1]))
         with np.errstate(all="ignore"):
-            values = function(*XR, *PR)
+            values = function()(*XR, *PR)
+            out = np.empty((len(values), XR.shape[1]))
             for j, value in enumerate(values):
                 out[j] = _real(value)
         return out

@@ -34,9 +34,9 @@ def scale_kernels(system: ReducedSystem, initial: dict[str, float] | None = None
     program = magnitude_program(system.rhs, x, p)
     bounds = [system.scales[s] if system.scales[s] is not None else sympy.nan for s in system.free]
     bound_fn = _vector_kernel([], p, bounds)
-    jac_terms = _vector_kernel(x, p, [absolute_form(e) for e in system.jacobian] if n else [])
+    jac_terms = _vector_kernel(x, p, lambda: [absolute_form(e) for e in system.jacobian] if n else [])
     symbols = {s: sympy.Symbol(s, real=True) for s in system.states}
-    full_terms = _vector_kernel(x, p, [absolute_form(system.eliminated.get(s, symbols[s])) for s in system.states])
+    full_terms = _vector_kernel(x, p, lambda: [absolute_form(system.eliminated.get(s, symbols[s])) for s in system.states])
 
     start = None
     if initial and all(s in initial for s in system.free):

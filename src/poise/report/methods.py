@@ -63,11 +63,13 @@ def completeness_words(run: RunData) -> str | None:
         lo, hi = (float(x) for x in check["ci95"])
     except (KeyError, TypeError, ValueError):
         return None
+    note = str(check.get("note") or "")
     if not checked:
-        return None
+        return f"no completeness check: {note}" if note else None
     return (f"{missed} of {checked} re-solved sets had a steady state the run missed "
             f"({100 * missed / checked:.1f} %, 95 % Wilson interval {100 * lo:.1f} to "
-            f"{100 * hi:.1f} %); reference: {check.get('reference', 'not recorded')}")
+            f"{100 * hi:.1f} %); reference: {check.get('reference', 'not recorded')}"
+            + (f" ({note})" if note else ""))
 
 
 def software_versions(run: RunData) -> list[tuple[str, str]]:

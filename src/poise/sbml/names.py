@@ -1,14 +1,14 @@
 """Poise names for SBML ids.
 
 SBML ids may clash with what poise expressions reserve (function names, claim
-words, Python keywords) and may use forms poise does not accept (a leading
-underscore, double underscores). Such ids get a new name; every other global id is
+words, columns of the run's tables, Python keywords) and may use forms poise does
+not accept (a leading underscore, double underscores). Such ids get a new name; every other global id is
 kept as it is. Renaming rules (documented for users in `poise.sbml`):
 
 - invalid characters: leading underscores are dropped, runs of underscores become
   one, a leading digit gets the prefix ``x``;
-- a reserved word gets the suffix ``_``; any remaining clash the suffix ``_2``,
-  ``_3``, ...;
+- a reserved word or a table column (``status``, ``eig_re_1``) gets the suffix
+  ``_``; any remaining clash the suffix ``_2``, ``_3``, ...;
 - a kinetic law's local parameter ``p`` of reaction ``R`` is named ``R_p``
   (same clash rules).
 """
@@ -19,29 +19,27 @@ import keyword
 import re
 
 from poise.study.expressions import FUNCTIONS
+from poise.study.vocabulary import CLAIM_WORDS, TABLE_COLUMNS, is_table_column
 
 _NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 
-# Words poise expressions and claims give a meaning of their own (design.md), plus
-# constants; the claim words are listed here rather than imported so that reading
-# SBML does not pull in the claim compiler.
-RESERVED = FUNCTIONS | frozenset({
-    "any", "all", "none", "count", "stable", "unstable", "undetermined", "node",
-    "focus", "saddle", "oscillatory", "margin", "center", "inf", "nan", "pi", "e",
-})
+# Words poise expressions and claims give a meaning of their own, the columns of a
+# run's tables (a parameter called `status` would overwrite that column), and the
+# constants `e` and `center` that readers of a model would take for something else.
+RESERVED = FUNCTIONS | CLAIM_WORDS | TABLE_COLUMNS | frozenset({"center", "e"})
 
 
 def is_usable(name: str) -> bool:
     """Whether ``name`` can be a poise state or parameter name as it stands."""
-    return (bool(_NAME.match(name)) and "__" not in name
-            and not keyword.iskeyword(name) and name not in RESERVED)
+    return (bool(_NAME.match(name)) and "__" not in name and not keyword.iskeyword(name)
+            and name not in RESERVED and not is_table_column(name))
 
 
 def _clean(name: str) -> str:
     cleaned = re.sub(r"_+", "_", re.sub(r"[^A-Za-z0-9_]", "_", name)).lstrip("_")
     if not cleaned or not cleaned[0].isalpha():
         cleaned = "x" + cleaned
-    if keyword.iskeyword(cleaned) or cleaned in RESERVED:
+    if keyword.iskeyword(cleaned) or cleaned in RESERVED or is_table_column(cleaned):
         cleaned += "_"
     return cleaned
 

@@ -46,7 +46,7 @@ __all__ = [
 ]
 
 FUNCTIONS: frozenset[str] = frozenset(
-    {"exp", "log", "sqrt", "sin", "cos", "tan", "tanh", "abs", "min", "max", "hill"})
+    {"exp", "log", "sqrt", "sin", "cos", "tan", "tanh", "abs", "min", "max", "hill", "piecewise"})
 
 MAX_TEXT_LENGTH = 20_000      # characters; a real kinetic law is far shorter
 MAX_BRACKET_DEPTH = 60        # CPython's own parser gives up near 200 levels
@@ -62,7 +62,12 @@ MAX_MAGNITUDE_LOG10 = 300     # numeric constants stay within 1e-300 .. 1e300 un
 # arity: (least, most); None = no upper bound
 _ARITY = {"exp": (1, 1), "log": (1, 1), "sqrt": (1, 1), "sin": (1, 1), "cos": (1, 1),
           "tan": (1, 1), "tanh": (1, 1), "abs": (1, 1), "min": (2, None),
-          "max": (2, None), "hill": (3, 3)}
+          "max": (2, None), "hill": (3, 3), "piecewise": (2, None)}
+
+# piecewise(value1, condition1, value2, condition2, ..., otherwise): the conditions are
+# comparisons joined by and / or / not; nothing else in a model expression is a condition
+_COMPARISONS = {ast.Lt: sympy.Lt, ast.LtE: sympy.Le, ast.Gt: sympy.Gt, ast.GtE: sympy.Ge,
+                ast.Eq: sympy.Eq, ast.NotEq: sympy.Ne}
 
 _SYMPY_FUNCTIONS = {"exp": sympy.exp, "log": sympy.log, "sqrt": sympy.sqrt,
                     "sin": sympy.sin, "cos": sympy.cos, "tan": sympy.tan,
@@ -306,29 +311,49 @@ def _whitelisted_names(tree: ast.expr, text: str) -> set[str]:
     """Check every node of a model expression; return the identifiers it uses."""
     found: set[str] = set()
     min_max_arguments = 0
-    stack = [tree]
+    stack = [(tree, False)]  # (node, whether it stands where a condition is expected)
     while stack:
-        node = stack.pop()
-        if isinstance(node, ast.Constant):
+        node, condition = stack.pop()
+        if condition:
+            stack.extend(_condition_parts(node, text))
+        elif isinstance(node, ast.Constant):
             literal_number(node, text)
         elif isinstance(node, ast.Name):
             found.add(check_name(node, text))
         elif isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.UAdd, ast.USub)):
-            stack.append(node.operand)
+            stack.append((node.operand, False))
         elif isinstance(node, ast.BinOp) and isinstance(
                 node.op, (ast.Add, ast.Sub, ast.Mult, ast.Div, ast.Pow)):
-            stack.extend((node.left, node.right))
+            stack.extend(((node.left, False), (node.right, False)))
         elif isinstance(node, ast.Call):
-            if check_call(node, _ARITY, text) in ("min", "max"):
+            name = check_call(node, _ARITY, text)
+            if name in ("min", "max"):
                 min_max_arguments += len(node.args)
                 if min_max_arguments > MAX_MIN_MAX_ARGUMENTS:
                     raise ExpressionError(
                         f"min() and max() take at most {MAX_MIN_MAX_ARGUMENTS} arguments "
                         f"in all in one expression")
-            stack.extend(node.args)
+            # piecewise: odd positions are conditions (a last, unpaired value is the otherwise)
+            stack.extend((arg, name == "piecewise" and i % 2 == 1) for i, arg in enumerate(node.args))
         else:
             raise refusal(node, text)
     return found
+
+
+def _condition_parts(node: ast.expr, text: str) -> list[tuple[ast.expr, bool]]:
+    """The parts of a piecewise condition, each marked as a condition or a value."""
+    if isinstance(node, ast.Compare):
+        for op in node.ops:
+            if type(op) not in _COMPARISONS:
+                raise ExpressionError(f"only <, <=, >, >=, == and != compare values in a "
+                                      f"condition: {quote_source(text, node)}")
+        return [(node.left, False)] + [(c, False) for c in node.comparators]
+    if isinstance(node, ast.BoolOp):
+        return [(v, True) for v in node.values]
+    if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.Not):
+        return [(node.operand, True)]
+    raise ExpressionError(f"a condition of piecewise() must be a comparison (joined by and, "
+                          f"or, not), not {quote_source(text, node)}")
 
 
 def referenced_names(text: str) -> set[str]:
@@ -478,6 +503,8 @@ class _Builder:
                 power = _power(base, exponent)  # its own checks name the exponent
                 value = self._shadow(_float_power, (base_value, exponent_value), node)
                 return power, value
+        if isinstance(node, ast.Call) and node.func.id == "piecewise":
+            return self._piecewise(node.args), None
         if isinstance(node, ast.Call):
             name = node.func.id
             built = [self.build(arg) for arg in node.args]
@@ -487,6 +514,23 @@ class _Builder:
                 return _hill(*args), value
             return _SYMPY_FUNCTIONS[name](*args), value
         raise refusal(node, self.text)  # unreachable after the whitelist; kept as a guard
+
+    def _piecewise(self, args: list[ast.expr]) -> sympy.Expr:
+        pieces = [(self.build(args[i])[0], self._condition(args[i + 1]))
+                  for i in range(0, len(args) - 1, 2)]
+        if len(args) % 2:
+            pieces.append((self.build(args[-1])[0], sympy.true))
+        return sympy.Piecewise(*pieces)
+
+    def _condition(self, node: ast.expr) -> sympy.Basic:
+        if isinstance(node, ast.Compare):
+            values = [self.build(v)[0] for v in (node.left, *node.comparators)]
+            links = [_COMPARISONS[type(op)](a, b) for op, a, b in zip(node.ops, values, values[1:])]
+            return sympy.And(*links)
+        if isinstance(node, ast.BoolOp):
+            parts = [self._condition(v) for v in node.values]
+            return sympy.And(*parts) if isinstance(node.op, ast.And) else sympy.Or(*parts)
+        return sympy.Not(self._condition(node.operand))  # the whitelist allows only `not` here
 
     def _sum(self, top: ast.BinOp) -> tuple[sympy.Expr, float | None]:
         # Walk the left-leaning chain iteratively so long sums need no recursion.
@@ -552,7 +596,11 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic]) -> sympy.Expr:
     text : str
         The expression, e.g. ``"r*A*(1 - A/K)"``. Allowed: numbers (``2``, ``0.5``,
         ``1e-3``), names, unary ``+``/``-``, binary ``+ - * / **``, parentheses and
-        calls of :data:`FUNCTIONS` (``hill(x, K, n) = x**n/(K**n + x**n)``).
+        calls of :data:`FUNCTIONS` (``hill(x, K, n) = x**n/(K**n + x**n)``;
+        ``piecewise(v1, c1, v2, c2, ..., otherwise)`` is v1 where the condition c1
+        holds, else v2 where c2 holds, ..., else the otherwise value (undefined when
+        it is left out); conditions compare values with ``< <= > >= == !=`` joined
+        by ``and``, ``or``, ``not``).
     names : mapping of str to sympy.Basic
         What each allowed identifier stands for: a Symbol, a number, or a whole expression
         (for named sub-expressions).
@@ -612,6 +660,26 @@ class _StudyPrinter(StrPrinter):
     def _print_Exp1(self, expr):
         return "exp(1)"
 
+    def _print_Piecewise(self, expr):
+        parts = []
+        for value, condition in expr.args:
+            parts.append(self._print(value))
+            if condition is not sympy.true:  # sympy keeps an always-true branch last
+                parts.append(self._print_condition(condition))
+        return f"piecewise({', '.join(parts)})"
+
+    _RELATIONS = {"<": "<", "<=": "<=", ">": ">", ">=": ">=", "==": "==", "!=": "!="}
+
+    def _print_condition(self, condition) -> str:
+        if isinstance(condition, sympy.core.relational.Relational) and condition.rel_op in self._RELATIONS:
+            return f"{self._print(condition.lhs)} {condition.rel_op} {self._print(condition.rhs)}"
+        if isinstance(condition, (sympy.And, sympy.Or)):
+            joint = " and " if isinstance(condition, sympy.And) else " or "
+            return joint.join(f"({self._print_condition(arg)})" for arg in condition.args)
+        if isinstance(condition, sympy.Not):
+            return f"not ({self._print_condition(condition.args[0])})"
+        raise ExpressionError(f"the condition {condition} cannot be written in study-file syntax")
+
     def _print_Float(self, expr):
         value = float(expr)
         if not math.isfinite(value):
@@ -629,23 +697,27 @@ class _StudyPrinter(StrPrinter):
 
 
 _PRINTABLE_ATOMS = (sympy.Symbol, sympy.Rational, sympy.Float)
+# piecewise and what its conditions are made of
+_PRINTABLE_LOGIC = (sympy.Piecewise, sympy.functions.elementary.piecewise.ExprCondPair,
+                    sympy.core.relational.Relational, sympy.And, sympy.Or, sympy.Not,
+                    sympy.logic.boolalg.BooleanTrue)
 
 
 def to_text(expr: sympy.Expr) -> str:
     """Write a sympy expression in study-file syntax.
 
     Python operators with ``**`` for powers and the study-file function names
-    (``abs``, ``min``, ``max``, ...), so that ``parse_expression(to_text(e), names)``
-    equals ``e`` mathematically.
+    (``abs``, ``min``, ``max``, ``piecewise``...), so that
+    ``parse_expression(to_text(e), names)`` equals ``e`` mathematically.
 
     Raises
     ------
     ExpressionError
         If `expr` uses something the study-file syntax lacks (e.g. ``pi``,
-        ``Piecewise``, infinities or complex numbers).
+        ``floor``, infinities or complex numbers).
     """
     for node in sympy.preorder_traversal(expr):
-        if isinstance(node, (sympy.Add, sympy.Mul, sympy.Pow)):
+        if isinstance(node, (sympy.Add, sympy.Mul, sympy.Pow, *_PRINTABLE_LOGIC)):
             continue
         if isinstance(node, (sympy.Function, sympy.Min, sympy.Max)):
             if node.func not in _PRINTABLE_FUNCTIONS:

@@ -17,6 +17,7 @@ from typing import Any, Mapping
 import sympy
 
 from poise.errors import ExpressionError, InputError
+from poise.model.conservation import extra_laws
 from poise.sampling.distributions import check_parameter, make_distribution
 from poise.study.claims import compile_claim
 from poise.study.expressions import FUNCTIONS, parse_expression, referenced_names
@@ -147,11 +148,11 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         raise where.error("parameters", name, f"'{name}' is already a state; a name can be a state or a parameter, not both")
 
     symbols = {name: sympy.Symbol(name, real=True) for name in [*states, *parameter_names]}
-    let_exprs = _let(model, symbols, where)
+    let_exprs = _let(model, symbols, where, sbml_extra.get("let", {}))
     names: dict[str, sympy.Basic] = {**symbols, **let_exprs}
     ode = {s: _parse(ode_text[s], names, where, "model.ode", s) for s in states}
 
-    conserved_text = model.get("conserved", sbml_extra.get("conserved", {}))
+    conserved_text = model.get("conserved", {})
     if not isinstance(conserved_text, dict):
         raise where.error("model", "conserved", "expected a table of total = \"linear combination of states\"")
     conserved = {}
@@ -162,8 +163,17 @@ def _build(path: Path, text: str, data: dict, where: _Where) -> Study:
         if not isinstance(combination, str):
             raise where.error("model.conserved", total, "expected a string such as \"E + C\"")
         conserved[total] = _parse(combination, symbols, where, "model.conserved", total)
+    # laws derived from an SBML file join the declared ones, unless these already imply them
+    derived = {t: _parse(c, symbols, where, "model.conserved", t) for t, c in sbml_extra.get("conserved", {}).items()}
+    kept = extra_laws(conserved, derived, states, sbml_extra.get("requires"), list(uncertain))
+    for total in derived:
+        if total in kept and total not in conserved:
+            conserved[total] = derived[total]
+        elif total not in conserved:
+            fixed.pop(total, None)
+    parameter_names = list(fixed) + list(uncertain)
 
-    domain = _domain(model, states, where)
+    domain = _domain(model, states, where, sbml_extra.get("domain", {}))
     initial = initial_state(model, states, domain, sbml_extra.get("initial", {}), where)
     long_run = long_run_settings(data, states, domain, where)
     claims = _claims(data, states, parameter_names, where)
@@ -223,10 +233,11 @@ def _ode_text(model: dict, states: list[str], where: _Where) -> dict[str, str]:
     return {s: ode[s] for s in states}
 
 
-def _let(model: dict, symbols: dict[str, sympy.Symbol], where: _Where) -> dict[str, sympy.Expr]:
+def _let(model: dict, symbols: dict[str, sympy.Symbol], where: _Where, imported=None) -> dict[str, sympy.Expr]:
     let = model.get("let", {})
     if not isinstance(let, dict):
         raise where.error("model", "let", "expected a table of name = \"expression\"")
+    let = {**(imported or {}), **let}  # an SBML model's rules and rates, then the study's own
     _check_names(list(let), "model.let", None, where)
     for name, text in let.items():
         if name in symbols:
@@ -267,8 +278,8 @@ def _topological(deps: dict[str, set[str]], where: _Where) -> list[str]:
     return order
 
 
-def _domain(model: dict, states: list[str], where: _Where) -> dict[str, tuple[float, float]]:
-    domain = {s: (0.0, math.inf) for s in states}
+def _domain(model: dict, states: list[str], where: _Where, defaults=None) -> dict[str, tuple[float, float]]:
+    domain = {s: (defaults or {}).get(s, (0.0, math.inf)) for s in states}
     given = model.get("domain", {})
     if not isinstance(given, dict):
         raise where.error("model", "domain", "expected a table of state = [low, high]")
@@ -299,7 +310,9 @@ def _from_sbml(path: Path, model: dict, where: _Where, warnings: list[str]):
     imported = read_sbml(path.parent / file)
     warnings.extend(imported.warnings)
     extra = {"initial": dict(imported.initial), "units": dict(imported.units),
-             "size": dict(imported.size), "conserved": dict(imported.conserved)}
+             "size": dict(imported.size), "conserved": dict(imported.conserved),
+             "let": dict(imported.let), "domain": dict(imported.domain),
+             "requires": dict(imported.conserved_requires)}
     return list(imported.states), dict(imported.ode), dict(imported.parameters), extra
 
 
@@ -385,12 +398,14 @@ def _sensitivity(data: dict, where: _Where) -> SensitivitySettings:
 
 def _solver(data: dict, where: _Where) -> SolverSettings:
     table = _table(data, "solver", where)
-    _no_unknown_keys(table, {"method", "starts", "deflation_rounds", "max_iterations"}, "solver", where)
+    _no_unknown_keys(table, {"method", "starts", "deflation_rounds", "max_iterations", "check_sets"}, "solver", where)
     return SolverSettings(
         method=_choice(table, "method", SolverSettings.method, SOLVER_METHODS, "solver", where),
         starts=_integer(table, "starts", SolverSettings.starts, 0, 10_000, "solver", where),
         deflation_rounds=_integer(table, "deflation_rounds", SolverSettings.deflation_rounds, 0, 20, "solver", where),
         max_iterations=_integer(table, "max_iterations", SolverSettings.max_iterations, 5, 10_000, "solver", where),
+        check_sets=(_integer(table, "check_sets", 0, 0, 100_000, "solver", where) if "check_sets" in table
+                    else SolverSettings.check_sets),
     )
 
 

@@ -35,6 +35,7 @@ class SolverSettings:
     starts: int = 0           # 0: chosen from the number of reduced states
     deflation_rounds: int = 2
     max_iterations: int = 60
+    check_sets: int = -1      # completeness check: sets re-solved; -1 chosen by budget, 0 off
 
 
 @dataclass(frozen=True)
