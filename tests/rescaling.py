@@ -31,6 +31,10 @@ def rescaled_study_text(study, state_units: dict[str, float], time_unit: float) 
     for s in study.states:
         low, high = study.domain[s]
         lines.append(f"{s} = [{_toml_float(low * state_units[s])}, {_toml_float(high * state_units[s])}]")
+    if study.initial:   # an SBML model's own initial state: a start and a size for Newton
+        lines += ["", "[model.initial]"]
+        for s in study.states:
+            lines.append(f"{s} = {_toml_float(study.initial[s] * state_units[s])}")
     if study.conserved:
         lines += ["", "[model.conserved]"]
         for total, expr in study.conserved.items():
