@@ -117,6 +117,14 @@ def _one_line_warnings() -> None:
     warnings.showwarning = show
 
 
+def _say_when_compiling() -> None:
+    """One line on stderr, in this process and its workers, if solver kernels compile."""
+    import os
+    from poise.engine.compile_notice import ENVIRONMENT_SWITCH, announce_compiling
+    os.environ[ENVIRONMENT_SWITCH] = "1"
+    announce_compiling()
+
+
 def _quiet_threads_after_interrupt():
     """After Ctrl-C, let background threads die silently; returns a function that puts
     the previous SIGINT handler and thread hook back.
@@ -178,12 +186,15 @@ def _inspect(args) -> int:
     study = load_study(args.study)
     _warn(study.warnings)
     overrides = _assignments(args.at, study)
+    _say_when_compiling()
     result = inspect_point(study, overrides)
     print(json.dumps(result, indent=2) if args.json else inspect_text(study, result))
     return 0
 
 
 def _run(args) -> int:
+    if not args.quiet:
+        _say_when_compiling()
     from poise.api import run_from_cli
     return run_from_cli(args)
 
