@@ -85,6 +85,13 @@ def main(argv: list[str] | None = None) -> int:
         return 1
     finally:
         restore()
+        _stop_saying_when_compiling()
+
+
+def _stop_saying_when_compiling() -> None:
+    import os
+    from poise.engine.compile_notice import ENVIRONMENT_SWITCH   # stdlib-only module
+    os.environ.pop(ENVIRONMENT_SWITCH, None)
 
 
 def _silence_stdout() -> None:
@@ -118,7 +125,8 @@ def _one_line_warnings() -> None:
 
 
 def _say_when_compiling() -> None:
-    """One line on stderr, in this process and its workers, if solver kernels compile."""
+    """One line on stderr, in this process and its workers, if solver kernels compile
+    during this command (`main` clears the switch when the command ends)."""
     import os
     from poise.engine.compile_notice import ENVIRONMENT_SWITCH, announce_compiling
     os.environ[ENVIRONMENT_SWITCH] = "1"

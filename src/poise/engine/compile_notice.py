@@ -42,6 +42,8 @@ def announce_compiling(stream=None) -> None:
 
     class _FirstCompile(event.Listener):
         def on_start(self, _event):
+            if not os.environ.get(ENVIRONMENT_SWITCH):   # the command that asked has ended
+                return
             with _LOCK:
                 if _STATE["said"]:
                     return
