@@ -39,6 +39,7 @@ ENGINE = ("import sys, poise; from poise.api import run_study; "
 
 
 CPU = {}  # command label -> CPU seconds (user + system) of the command and its children
+STDERR = {}  # command label -> stderr of its last run
 
 
 def _children_cpu() -> float:
@@ -57,6 +58,7 @@ def timed(command: list[str], env: dict, label: str = "") -> float:
         raise SystemExit(f"failed ({done.returncode}): {' '.join(command)}\n{done.stderr[-3000:]}")
     if label:
         CPU[label] = min(CPU.get(label, float("inf")), _children_cpu() - cpu)
+        STDERR[label] = done.stderr
     return seconds
 
 
@@ -76,9 +78,11 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as scratch:
         scratch = Path(scratch)
         env = dict(os.environ, NUMBA_CACHE_DIR=str(scratch / "numba-cache"))
-        run = poise_command() + ["run", args.study, "--quiet", *jobs]
+        # not --quiet: the compile notice is part of what a first run shows
+        run = poise_command() + ["run", args.study, *jobs]
 
         first = timed(run + ["--out", str(scratch / "first")], env, "first run")
+        noticed_first = "compiling solver kernels" in STDERR["first run"]
         warm = [timed(run + ["--out", str(scratch / f"warm{i}")], env, "warm run")
                 for i in range(args.repeats)]
         bare = min(timed([sys.executable, "-c", "pass"], env, "bare interpreter")
@@ -98,6 +102,8 @@ def main() -> None:
     print(f"  warm (best of {args.repeats}):            {best:6.2f} s   target {TARGET_WARM:.0f} s "
           f"-> {best / TARGET_WARM:4.2f}x the target   (all: {', '.join(f'{w:.2f}' for w in warm)})")
     print(f"  compiling kernels on the first run costs about {first - best:.1f} s")
+    print(f"  compile notice on stderr: first run {'yes' if noticed_first else 'NO'}, last warm run "
+          f"{'YES' if 'compiling solver kernels' in STDERR['warm run'] else 'no'}")
     print(f"where a warm run goes (best of {args.repeats}; baseline: bare interpreter {bare:.2f} s):")
     for label, key, seconds in (("bare interpreter", "bare interpreter", bare),
                                 ("import poise.api", "import poise.api", imports),

@@ -85,6 +85,13 @@ def main(argv: list[str] | None = None) -> int:
         return 1
     finally:
         restore()
+        _stop_saying_when_compiling()
+
+
+def _stop_saying_when_compiling() -> None:
+    import os
+    from poise.engine.compile_notice import ENVIRONMENT_SWITCH   # stdlib-only module
+    os.environ.pop(ENVIRONMENT_SWITCH, None)
 
 
 def _silence_stdout() -> None:
@@ -115,6 +122,15 @@ def _one_line_warnings() -> None:
             default(message, category, filename, lineno, file, line)
 
     warnings.showwarning = show
+
+
+def _say_when_compiling() -> None:
+    """One line on stderr, in this process and its workers, if solver kernels compile
+    during this command (`main` clears the switch when the command ends)."""
+    import os
+    from poise.engine.compile_notice import ENVIRONMENT_SWITCH, announce_compiling
+    os.environ[ENVIRONMENT_SWITCH] = "1"
+    announce_compiling()
 
 
 def _quiet_threads_after_interrupt():
@@ -178,12 +194,15 @@ def _inspect(args) -> int:
     study = load_study(args.study)
     _warn(study.warnings)
     overrides = _assignments(args.at, study)
+    _say_when_compiling()
     result = inspect_point(study, overrides)
     print(json.dumps(result, indent=2) if args.json else inspect_text(study, result))
     return 0
 
 
 def _run(args) -> int:
+    if not args.quiet:
+        _say_when_compiling()
     from poise.api import run_from_cli
     return run_from_cli(args)
 

@@ -40,9 +40,11 @@ def prepared(study_path: str, study_text: str):
     with _CACHE_LOCK:
         if key not in _CACHE:
             from poise.model import compile_model
+            from poise.engine.compile_notice import announce_compiling
             from poise.errors import quiet_sobol_balance
             from poise.study.loader import load_study
             quiet_sobol_balance()   # a worker's stderr is the user's terminal
+            announce_compiling()    # only if the `poise` command asked for it
             study = load_study(Path(study_path), text=study_text)
             _CACHE.clear()  # one study per process: a long-lived worker does not pile them up
             _CACHE[key] = (study, compile_model(study))
