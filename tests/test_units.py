@@ -133,8 +133,8 @@ SMALL_DETERMINANT = """
 
 
 def _run(tmp_path, text, method, name):
-    study = load_study(write_study(tmp_path, text.replace("[sensitivity]", f'[solver]\nmethod = "{method}"\n[sensitivity]'),
-                                   f"{name}.toml"))
+    solver = f'[solver]\nmethod = "{method}"\n[sensitivity]'
+    study = load_study(write_study(tmp_path, text.replace("[sensitivity]", solver), f"{name}.toml"))
     return run_study(study, tmp_path / f"run_{name}", jobs=1, report=False)
 
 
