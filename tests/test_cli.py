@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from conftest import GRAZING_STUDY
 from helpers import run_cli, write_study
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -54,18 +55,7 @@ def test_sbml_study_check_json_has_initial_units_and_size():
     assert len(model["conserved"]) == 1
 
 
-GOOD = """
-    [model]
-    states = ["A", "G"]
-    [model.ode]
-    A = "r*A*(1 - A/K) - c*A*G"
-    G = "c*A*G - d*G"
-    [parameters]
-    r = 1.0
-    K = { dist = "uniform", low = 2, high = 10 }
-    c = 0.5
-    d = 0.2
-"""
+GOOD = GRAZING_STUDY
 
 BAD_STUDIES = [
     # (replace this, with this, expected pieces of the message)

@@ -9,18 +9,11 @@ from __future__ import annotations
 
 import json
 
+from conftest import TOGGLE_MODEL
 from helpers import write_study
 from poise import load_study, run_study
 
-TOGGLE = """
-    [model]
-    states = ["u", "v"]
-    [model.ode]
-    u = "a1/(1 + v**2) - u"
-    v = "a2/(1 + u**2) - v"
-    [parameters]
-    a1 = { dist = "uniform", low = 0.5, high = 6 }
-    a2 = { dist = "uniform", low = 0.5, high = 6 }
+TOGGLE = TOGGLE_MODEL + """\
     [[claims]]
     name = "bistable"
     holds = "count(stable) >= 2"

@@ -19,7 +19,7 @@ from poise.cli import build_parser
 from poise.engine.runner import JOBS_PER_CORE, capped_jobs, usable_cores
 
 from helpers import run_cli, write_study
-from test_cli import GOOD as CLI_STUDY
+from conftest import GRAZING_STUDY as CLI_STUDY
 
 BIN = Path(sys.executable).parent
 
