@@ -242,6 +242,7 @@ def test_a_dask_cluster_gives_identical_results(study_path, reference, tmp_path)
 
 # --- never lose work ------------------------------------------------------------------------
 
+@pytest.mark.slow
 def test_sigkill_then_resume_matches_and_recomputes_no_finished_chunk(study_path, reference, tmp_path, computed):
     out = tmp_path / "run"
     process = _start_cli("run", str(study_path), "--out", str(out), "--jobs", "2", "--quiet")

@@ -203,6 +203,7 @@ def test_an_sbml_study_without_parameters_runs_on_the_files_values(tmp_path):
 
 # --- the console script: no leaked library warnings, a clean public API ------------------------
 
+@pytest.mark.slow
 def test_scipy_sobol_balance_warning_does_not_reach_the_terminal(tmp_path):
     # 100 Newton starts: a Sobol' sequence cut at a size that is not a power of 2, for
     # which scipy warns; --jobs 2 with small chunks puts the finder in worker processes.
