@@ -25,16 +25,20 @@ def rescaled_study_text(study, state_units: dict[str, float], time_unit: float) 
     lines = [f"title = {json.dumps(study.title + ' (other units)')}", "", "[model]",
              f"states = {json.dumps(list(study.states))}", "", "[model.ode]"]
     for s in study.states:
-        expr = _number(state_units[s] / time_unit) * study.ode[s].xreplace(back)
+        expr = _number(state_units[s]) / _number(time_unit) * _exact(study.ode[s]).xreplace(back)
         lines.append(f"{s} = {json.dumps(to_text(expr))}")
     lines += ["", "[model.domain]"]
     for s in study.states:
         low, high = study.domain[s]
         lines.append(f"{s} = [{_toml_float(low * state_units[s])}, {_toml_float(high * state_units[s])}]")
+    if study.initial:   # an SBML model's own initial state: a start and a size for Newton
+        lines += ["", "[model.initial]"]
+        for s in study.states:
+            lines.append(f"{s} = {_toml_float(study.initial[s] * state_units[s])}")
     if study.conserved:
         lines += ["", "[model.conserved]"]
         for total, expr in study.conserved.items():
-            lines.append(f"{total} = {json.dumps(to_text(expr.xreplace(back)))}")
+            lines.append(f"{total} = {json.dumps(to_text(_exact(expr).xreplace(back)))}")
     lines += ["", "[parameters]"]
     for name, value in study.fixed.items():
         lines.append(f"{name} = {_toml_float(value)}")
@@ -64,6 +68,13 @@ def _rescaled_claim(text: str, state_units: dict[str, float]) -> str:
             return node
 
     return ast.unparse(Swap().visit(tree))
+
+
+def _exact(expr: sympy.Expr) -> sympy.Expr:
+    """Each decimal number as the exact fraction it denotes, so that products with the
+    units are exact (a conservation law of an imported model holds exactly in its
+    decimals, and must still hold after the rewrite)."""
+    return expr.xreplace({f: sympy.Rational(repr(float(f))) for f in expr.atoms(sympy.Float)})
 
 
 def _number(value: float) -> sympy.Expr:

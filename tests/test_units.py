@@ -250,3 +250,19 @@ def test_results_do_not_depend_on_units(tmp_path, name, draw):
     text = rescaled_study_text(study, units, time_unit)
     rescaled = load_study(write_study(tmp_path, text, f"{name}_rescaled.toml"))
     _compare(study, rescaled, units, time_unit, 64, tmp_path)
+
+
+HUGE_WHOLE_NUMBERS = STIFF.replace('x = "-c*x + y"', 'x = "-10000000000000000*x + 100000000000000000000*y"').replace("c = 1e6\n", "")
+
+
+@pytest.mark.parametrize("method", METHODS)
+def test_whole_numbers_beyond_64_bits_in_the_equations(tmp_path, method):
+    # closed form: x' = -1e16 x + 1e20 y, y' = a - 1e-3 y: y = 1e3 a, x = 1e7 a, eigenvalues
+    # -1e16 and -1e-3 (triangular Jacobian); 10^16 and 10^20 written out are exact whole
+    # numbers, beyond what numpy's integer arithmetic takes
+    result = _run(tmp_path, HUGE_WHOLE_NUMBERS, method, "huge")
+    eq = result.equilibria.set_index("sample_id")
+    a = result.samples.set_index("sample_id").loc[eq.index, "a"]
+    np.testing.assert_allclose(eq["x"], 1e7 * a, rtol=1e-9)
+    np.testing.assert_allclose(eq["y"], 1e3 * a, rtol=1e-9)
+    assert (eq["class"] == "stable node").all()

@@ -80,6 +80,7 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
     limits = beyond_limits(model.kernels, found.free, found.full, params[found.owner], jacobians,
                            classes.eigenvalues, classes.class_code < CLASS_NAMES.index("center"),
                            model.nonlinear)
+    limits = np.where(limits != "", limits, _on_surface(model, found, params))
     for row in np.flatnonzero(limits != ""):
         if ok[found.owner[row]]:
             ok[found.owner[row]] = False
@@ -99,6 +100,19 @@ def analyse_sets(study: Study, model: CompiledModel, sample_ids: np.ndarray,
     return ChunkResult(sets=sets, equilibria=equilibria[keep].reset_index(drop=True),
                        jacobians=jacobians[keep],
                        trajectories=None if simulated is None else simulated.trajectories)
+
+
+def _on_surface(model: CompiledModel, found: FoundStates, params: np.ndarray) -> np.ndarray:
+    """A reason for each steady state on a switching surface of a piecewise rate (its
+    two sides have different Jacobians, so one Jacobian cannot classify it), else ""."""
+    reasons = np.full(found.owner.shape[0], "", dtype=object)
+    if not model.surfaces.any or not reasons.size:
+        return reasons
+    from poise.model.switching import on_switching_surface
+    on = on_switching_surface(model.surfaces, found.free, params[found.owner])
+    reasons[on] = ("a steady state lies on a switching surface of a piecewise rate, where the "
+                   "Jacobian differs on its two sides: its class cannot be read from one Jacobian")
+    return reasons
 
 
 def _jacobian_terms(model: CompiledModel, found: FoundStates, params: np.ndarray) -> np.ndarray | None:

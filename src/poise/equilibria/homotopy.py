@@ -92,6 +92,7 @@ from poise.equilibria.balance import balance, rescale
 from poise.equilibria.merge import coincident, unique_sorted
 from poise.equilibria.parameter_path import ParameterFamily, along_line, parameter_family
 from poise.equilibria.polynomial import PolynomialSystem
+from poise.model.constants import floating_constants
 
 # Paths advanced together; larger batches of parameter sets are cut into chunks of this
 # many paths (results do not depend on the cut: every path is computed on its own).
@@ -551,7 +552,7 @@ def _coefficient_function(params, exprs):
     """Vectorised evaluation of a (q, K) grid of coefficient expressions."""
     flat = [e for row in exprs for e in row]
     shape = (len(exprs), len(exprs[0]) if exprs else 0)
-    fn = sympy.lambdify(params, flat, modules="numpy", cse=True) if flat else None
+    fn = sympy.lambdify(params, [floating_constants(e) for e in flat], modules="numpy", cse=True) if flat else None
 
     def evaluate(values: np.ndarray) -> np.ndarray:
         B = values.shape[0]

@@ -27,6 +27,8 @@ from dataclasses import dataclass
 import numpy as np
 import sympy
 
+from poise.model.constants import floating_constants
+
 
 @dataclass(frozen=True, eq=False)
 class ParameterFamily:
@@ -59,7 +61,7 @@ def parameter_family(params: Sequence[sympy.Symbol],
         if expr != 0:
             degree = max(degree, sympy.Poly(expr, *params).total_degree())
     shape = (len(exprs), len(exprs[0]))
-    fn = sympy.lambdify(params, flat, modules="numpy", cse=True)
+    fn = sympy.lambdify(params, [floating_constants(e) for e in flat], modules="numpy", cse=True)
 
     def evaluate(values: np.ndarray) -> np.ndarray:
         values = np.asarray(values, dtype=complex)

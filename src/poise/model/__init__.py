@@ -43,6 +43,12 @@ class CompiledModel:
         states = set(self.system.free_symbols)
         return any(expr.free_symbols & states for expr in self.system.jacobian)
 
+    @cached_property
+    def surfaces(self):
+        """The state-dependent switching conditions of piecewise rates, compiled."""
+        from poise.model.switching import compile_surfaces
+        return compile_surfaces(self.system)
+
 
 def compile_model(study: Study, values: Mapping[str, float] | None = None,
                   varying: Sequence[str] | None = None) -> CompiledModel:

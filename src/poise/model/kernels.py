@@ -17,6 +17,7 @@ import sympy
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.precedence import PRECEDENCE
 
+from poise.model.constants import floating_constants
 from poise.model.magnitudes import absolute_form
 from poise.model.system import ReducedSystem
 
@@ -171,6 +172,5 @@ class _ProductPowerPrinter(NumPyPrinter):
 
 def _numeric_friendly(expr: sympy.Expr) -> sympy.Expr:
     """Replace Min/Max by elementwise numpy versions (sympy prints them as reductions)."""
-    if not isinstance(expr, sympy.Basic):
-        expr = sympy.Float(expr)
+    expr = floating_constants(expr)
     return expr.replace(sympy.Min, lambda *a: _MIN(*a)).replace(sympy.Max, lambda *a: _MAX(*a))

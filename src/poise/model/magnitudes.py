@@ -31,6 +31,8 @@ from typing import Callable, Sequence
 import numpy as np
 import sympy
 
+from poise.model.constants import floating_constants
+
 # the weak pull of undetermined directions towards 0 (size 1), relative to one balance row
 _RIDGE = 1e-8
 # logarithmic sizes are clipped to the range of double precision
@@ -173,7 +175,7 @@ def _grid_kernel(params, exprs, shape):
     flat = [sympy.sympify(e) for line in exprs for e in line]  # safe: built by poise
     if not flat:
         return lambda P: np.zeros((P.shape[0],) + shape)
-    function = sympy.lambdify(params, flat, modules="numpy", cse=True)
+    function = sympy.lambdify(params, [floating_constants(e) for e in flat], modules="numpy", cse=True)
 
     def kernel(P: np.ndarray) -> np.ndarray:
         out = np.empty((P.shape[0], len(flat)))

@@ -21,6 +21,7 @@ from typing import Callable, Sequence
 import numpy as np
 import sympy
 
+from poise.model.constants import floating_constants
 from poise.model.system import ReducedSystem
 
 TOLERANCE = 1e-7  # relative to the size of the two sides' terms; Newton roots are far tighter
@@ -118,7 +119,7 @@ def _term_size(expr: sympy.Expr) -> sympy.Expr:
 
 
 def _batch(arguments: Sequence[sympy.Symbol], exprs: Sequence[sympy.Expr]):
-    function = sympy.lambdify(arguments, exprs, modules="numpy")
+    function = sympy.lambdify(arguments, [floating_constants(e) for e in exprs], modules="numpy")
     count = len(exprs)
 
     def evaluate(X: np.ndarray, P: np.ndarray) -> np.ndarray:
