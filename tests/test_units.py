@@ -252,7 +252,8 @@ def test_results_do_not_depend_on_units(tmp_path, name, draw):
     _compare(study, rescaled, units, time_unit, 64, tmp_path)
 
 
-HUGE_WHOLE_NUMBERS = STIFF.replace('x = "-c*x + y"', 'x = "-10000000000000000*x + 100000000000000000000*y"').replace("c = 1e6\n", "")
+HUGE_WHOLE_NUMBERS = STIFF.replace('x = "-c*x + y"', 'x = "-10000000000000000*x + 100000000000000000000*y"').replace(
+    "c = 1e6\n", "")
 
 
 @pytest.mark.parametrize("method", METHODS)
