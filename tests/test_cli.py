@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from conftest import GRAZING_STUDY
 from helpers import run_cli, write_study
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -54,18 +55,7 @@ def test_sbml_study_check_json_has_initial_units_and_size():
     assert len(model["conserved"]) == 1
 
 
-GOOD = """
-    [model]
-    states = ["A", "G"]
-    [model.ode]
-    A = "r*A*(1 - A/K) - c*A*G"
-    G = "c*A*G - d*G"
-    [parameters]
-    r = 1.0
-    K = { dist = "uniform", low = 2, high = 10 }
-    c = 0.5
-    d = 0.2
-"""
+GOOD = GRAZING_STUDY
 
 BAD_STUDIES = [
     # (replace this, with this, expected pieces of the message)
@@ -73,7 +63,8 @@ BAD_STUDIES = [
     ('G = "c*A*G - d*G"', '', ["[model.ode]", "'G'", "no equation"]),
     ('d = 0.2', '', ["[model.ode]", "'d'", "not declared"]),
     ('low = 2, high = 10', 'low = 10, high = 2', ["[parameters]", "K", "low"]),
-    ('K = { dist = "uniform", low = 2, high = 10 }', 'K = { dist = "normal", mean = 5, sd = -1 }', ["[parameters]", "sd"]),
+    ('K = { dist = "uniform", low = 2, high = 10 }', 'K = { dist = "normal", mean = 5, sd = -1 }',
+     ["[parameters]", "sd"]),
     ('dist = "uniform"', 'dist = "gaussian"', ["[parameters]", "K", "gaussian"]),
     ('A = "r*A*(1 - A/K) - c*A*G"', 'A = "__import__(\'os\').system(\'echo hacked\')"', ["[model.ode]", "'A'"]),
     ('[parameters]', '[model.let]\nu = "w + 1"\nw = "u*2"\n[parameters]', ["[model.let]", "cycle"]),
@@ -175,7 +166,8 @@ def test_fixed_values_that_make_the_model_complex_or_undefined_are_refused(tmp_p
     """, "complex.toml")
     status, _, err = run_cli("check", str(complex_model))
     assert status == 2 and "[model.ode]" in err and "'x'" in err and "c" in err
-    zero_capacity = write_study(tmp_path, GOOD.replace('K = { dist = "uniform", low = 2, high = 10 }', "K = 0"), "zero.toml")
+    zero_capacity = write_study(tmp_path, GOOD.replace('K = { dist = "uniform", low = 2, high = 10 }', "K = 0"),
+                                "zero.toml")
     status, _, err = run_cli("check", str(zero_capacity))
     assert status == 2 and "Traceback" not in err and "[model.ode]" in err
     status, _, err = run_cli("inspect", str(write_study(tmp_path, GOOD, "good.toml")), "--at", "K=0")
@@ -190,7 +182,8 @@ def test_claim_names_that_collide_with_table_columns_are_refused(tmp_path, name)
 
 
 def test_claim_names_differing_only_in_spaces_are_refused(tmp_path):
-    claims = '\n[[claims]]\nname = "u wins"\nholds = "any(stable)"\n[[claims]]\nname = " u  wins"\nholds = "all(stable)"\n'
+    claims = ('\n[[claims]]\nname = "u wins"\nholds = "any(stable)"\n'
+              '[[claims]]\nname = " u  wins"\nholds = "all(stable)"\n')
     status, _, err = run_cli("check", str(write_study(tmp_path, GOOD + claims)))
     assert status == 2 and "[claims[2]]" in err and "already called" in err and "Traceback" not in err
 

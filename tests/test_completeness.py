@@ -9,18 +9,13 @@ from __future__ import annotations
 
 import json
 
+import pytest
+
+from conftest import TOGGLE_MODEL
 from helpers import write_study
 from poise import load_study, run_study
 
-TOGGLE = """
-    [model]
-    states = ["u", "v"]
-    [model.ode]
-    u = "a1/(1 + v**2) - u"
-    v = "a2/(1 + u**2) - v"
-    [parameters]
-    a1 = { dist = "uniform", low = 0.5, high = 6 }
-    a2 = { dist = "uniform", low = 0.5, high = 6 }
+TOGGLE = TOGGLE_MODEL + """\
     [[claims]]
     name = "bistable"
     holds = "count(stable) >= 2"
@@ -41,6 +36,7 @@ def _completeness(tmp_path, extra: str, name: str) -> dict:
     return result.summary["solver"]["completeness"]
 
 
+@pytest.mark.slow
 def test_check_sets_fixes_the_number_and_zero_turns_it_off(tmp_path):
     fixed = _completeness(tmp_path, "    check_sets = 12\n", "fixed")
     assert fixed["checked"] == 12 and fixed["reference"] == "homotopy continuation"

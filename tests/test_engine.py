@@ -200,6 +200,7 @@ def test_reference_rows_match_the_analytic_persistence_condition(reference):
 
 # --- same results whatever runs the chunks ----------------------------------------------
 
+@pytest.mark.slow
 def test_two_local_processes_give_identical_results(study_path, reference, tmp_path):
     run_study(poise.load_study(study_path), tmp_path / "run", jobs=2, report=False)
     assert _summary_bytes(tmp_path / "run") == _summary_bytes(reference)
@@ -222,6 +223,7 @@ def test_automatic_jobs_start_no_workers_for_a_small_run(study_path, reference, 
     assert not runner.worth_processes(0.05, 19, 2)
 
 
+@pytest.mark.slow
 def test_a_dask_cluster_gives_identical_results(study_path, reference, tmp_path):
     distributed = pytest.importorskip("distributed")
     import logging
@@ -242,6 +244,7 @@ def test_a_dask_cluster_gives_identical_results(study_path, reference, tmp_path)
 
 # --- never lose work ------------------------------------------------------------------------
 
+@pytest.mark.slow
 def test_sigkill_then_resume_matches_and_recomputes_no_finished_chunk(study_path, reference, tmp_path, computed):
     out = tmp_path / "run"
     process = _start_cli("run", str(study_path), "--out", str(out), "--jobs", "2", "--quiet")
@@ -310,6 +313,7 @@ def test_a_changed_study_is_refused_without_traceback(reference, tmp_path):
     assert status == 2 and "unfinished run of a different study" in err
 
 
+@pytest.mark.slow
 def test_ctrl_c_stops_cleanly_and_says_how_to_resume(study_path, reference, tmp_path):
     out = tmp_path / "run"
     # Its own process group, signalled as a whole: what Ctrl-C in a terminal does,
@@ -351,6 +355,7 @@ def test_a_raising_chunk_is_retried_once_then_recorded_as_failed(study_path, ref
     _assert_chunk_failed(result, reference, chunk=3, reason="synthetic failure in the model")
 
 
+@pytest.mark.slow
 def test_a_chunk_that_kills_its_worker_is_retried_once_then_failed(study_path, reference, tmp_path, monkeypatch):
     def deadly(*args):
         # Defined inside the test, so it is sent to the workers by value.

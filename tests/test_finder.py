@@ -18,17 +18,6 @@ from helpers import write_study
 
 CONFIGS = Path(__file__).resolve().parent.parent / "configs"
 
-TOGGLE = """
-    [model]
-    states = ["u", "v"]
-    [model.ode]
-    u = "a1/(1 + v**2) - u"
-    v = "a2/(1 + u**2) - v"
-    [parameters]
-    a1 = { dist = "uniform", low = 0.5, high = 6 }
-    a2 = { dist = "uniform", low = 0.5, high = 6 }
-"""
-
 COMPETITION = """
     [model]
     states = ["x", "y"]
@@ -77,11 +66,11 @@ def random_params(model, count, low, high, seed):
     return rng.uniform(low, high, size=(count, len(model.varying)))
 
 
-def test_toggle_switch_matches_polynomial_roots(tmp_path):
+def test_toggle_switch_matches_polynomial_roots(tmp_path, toggle_model):
     # reference library: numpy.roots. Eliminating v = a2/(1 + u^2) from u (1 + v^2) = a1
     # gives u ((1 + u^2)^2 + a2^2) - a1 (1 + u^2)^2 = 0, a quintic whose real roots are
     # exactly the steady states (all have u > 0 and v > 0).
-    model = compiled(tmp_path, TOGGLE)
+    model = compiled(tmp_path, toggle_model)
     assert model.varying == ("a1", "a2")
     params = random_params(model, 300, 0.5, 6.0, seed=11)
     found = solve(model, params)

@@ -132,6 +132,7 @@ def test_the_mutations_are_reproducible_and_mostly_changed(mutated):
     assert changed >= 0.95 * MUTATIONS
 
 
+@pytest.mark.slow
 def test_poise_check_survives_every_mutation(mutated, tmp_path):
     assert POISE, "the poise console script is not installed"
     progress = tmp_path / "started"

@@ -109,6 +109,7 @@ def any_per_set(owner, mask, n_sets):
 
 # --------------------------------------------------------------------------- Brusselator
 
+@pytest.mark.slow
 def test_brusselator_oscillates_exactly_where_b_exceeds_one_plus_a_squared(models):
     params = brusselator_sets(160)
     a, b = params.T
@@ -413,6 +414,7 @@ def test_outcomes_do_not_depend_on_the_batch_and_repeat_exactly(models):
             assert np.array_equal(getattr(part, name)[a], getattr(everything, name)[b], equal_nan=True), name
 
 
+@pytest.mark.slow
 def test_outcomes_do_not_depend_on_units(tmp_path, models):
     # the Brusselator with time in minutes instead of hours (x 60), x in milli-units
     # (x 1000) and y in hecto-units (x 0.01): same trajectories, rescaled

@@ -341,6 +341,7 @@ def test_rewriting_gives_identical_bytes(nasty_run):
         assert path.read_bytes() == before[path], path
 
 
+@pytest.mark.slow
 def test_rewriting_drops_figures_that_no_longer_apply_and_keeps_foreign_files(nasty_run):
     # design requirement: nothing in figures/ contradicts the report next to it
     root, written = nasty_run

@@ -47,6 +47,7 @@ def test_truncated_outcomes_give_one_message_and_leave_every_file_alone(finished
     (lambda text: json.dumps({**json.loads(text), "claims": []}), "'claims' should be a JSON object"),
     (lambda text: "[1, 2]", "does not hold a JSON object"),
 ])
+@pytest.mark.slow
 def test_broken_summary_is_an_input_error_and_nothing_is_written(finished, damage, message):
     path = finished / "summary.json"
     path.write_text(damage(path.read_text()))
@@ -57,6 +58,7 @@ def test_broken_summary_is_an_input_error_and_nothing_is_written(finished, damag
     assert _snapshot(finished) == before
 
 
+@pytest.mark.slow
 def test_poise_report_command_with_broken_summary_exits_2(finished):
     path = finished / "summary.json"
     path.write_text(path.read_text()[:40])
@@ -64,6 +66,7 @@ def test_poise_report_command_with_broken_summary_exits_2(finished):
     assert status == 2 and "summary.json" in err and err.count("\n") == 1
 
 
+@pytest.mark.slow
 def test_unfinished_run_is_refused(finished):
     manifest = json.loads((finished / "manifest.json").read_text())
     manifest["complete"] = False
@@ -72,6 +75,7 @@ def test_unfinished_run_is_refused(finished):
         write_report(finished)
 
 
+@pytest.mark.slow
 def test_missing_data_file_is_named_and_earlier_figures_are_kept(finished):
     kept = {name: (finished / name).read_bytes() for name in
             ("figures/factor_map_claim01.png", "figures/probability_map_claim02.svg",
@@ -94,6 +98,7 @@ def test_missing_data_file_is_named_and_earlier_figures_are_kept(finished):
     assert "](figures/factor_map_claim01.png)" in md and "Earlier rendering, not rebuilt" in md
 
 
+@pytest.mark.slow
 def test_missing_data_without_earlier_rendering_says_it_cannot_draw(tmp_path):
     root = build_run(tmp_path / "run")
     (root / "equilibria.parquet").unlink()
@@ -105,6 +110,7 @@ def test_missing_data_without_earlier_rendering_says_it_cannot_draw(tmp_path):
         (root / "report.md").read_text(encoding="utf-8")
 
 
+@pytest.mark.slow
 def test_every_file_goes_through_write_atomic_and_no_planted_link_is_followed(finished, monkeypatch,
                                                                               tmp_path):
     outside = tmp_path / "outside.txt"

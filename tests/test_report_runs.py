@@ -14,6 +14,9 @@ from poise.study.loader import load_study
 
 from helpers import run_cli
 
+# every test here shares one run of every bundled study (about half a minute)
+pytestmark = pytest.mark.slow
+
 ROOT = Path(__file__).resolve().parents[1]
 CONFIGS = sorted(ROOT.glob("configs/**/*.toml"))
 

@@ -110,7 +110,7 @@ def test_same_seed_gives_identical_summary_and_chunking_does_not_matter(tmp_path
     # common practice, no source: reproducibility is a property, checked byte for byte.
     study = load_study(write_study(tmp_path, REEF))
     first = run_study(study, tmp_path / "one", jobs=1, report=False)
-    second = run_study(study, tmp_path / "two", jobs=1, report=False)
+    run_study(study, tmp_path / "two", jobs=1, report=False)
     rechunked = run_study(study, tmp_path / "three", jobs=1, chunk_size=37, report=False)
     text = [(tmp_path / d / "summary.json").read_bytes() for d in ("one", "two", "three")]
     assert text[0] == text[1] == text[2]

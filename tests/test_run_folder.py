@@ -97,6 +97,7 @@ def test_a_folder_of_the_users_is_refused_and_left_as_it_was(studies, tmp_path, 
     assert _snapshot(folder) == before      # nothing written, nothing deleted, no lock file
 
 
+@pytest.mark.slow
 def test_replacing_a_run_needs_overwrite_and_removes_only_its_own_files(studies, tmp_path):
     out = tmp_path / "run"
     out.mkdir()                         # an empty folder is taken
@@ -160,6 +161,7 @@ def _wait_for_lock(out: Path, pid: int, process: subprocess.Popen) -> None:
     pytest.fail("hang guard: the first run never took the lock")
 
 
+@pytest.mark.slow
 def test_two_runs_into_one_folder_the_second_is_refused_naming_the_first(studies, tmp_path):
     out = tmp_path / "run"
     first = subprocess.Popen([POISE, "run", str(studies[0]), "--out", str(out), "--jobs", "1", "--quiet"],
@@ -187,6 +189,7 @@ def test_two_runs_into_one_folder_the_second_is_refused_naming_the_first(studies
     assert (out / "summary.json").read_bytes() == (tmp_path / "reference" / "summary.json").read_bytes()
 
 
+@pytest.mark.slow
 def test_a_locked_folder_is_refused_for_run_and_report(studies, tmp_path):
     out = tmp_path / "run"
     run_study(poise.load_study(studies[1]), out, jobs=1, report=False)
@@ -202,6 +205,7 @@ def test_a_locked_folder_is_refused_for_run_and_report(studies, tmp_path):
 
 # --- Ctrl-C: the printed command resumes the run -------------------------------------------
 
+@pytest.mark.slow
 def test_the_resume_command_printed_after_ctrl_c_works_as_printed(studies, tmp_path):
     out = tmp_path / "it's a run"          # a space and a quote: the command must quote them
     args = ["run", str(studies[0]), "--out", str(out), "--size", "256", "--seed", "4", "--jobs", "2"]
@@ -287,6 +291,7 @@ def test_run_files_get_the_mode_the_umask_gives(studies, tmp_path):
 
 # --- 8. environment failures: one line, nothing left as if complete ----------------------------
 
+@pytest.mark.slow
 def test_a_file_size_limit_mid_run_gives_one_line_and_an_unfinished_run(studies, tmp_path):
     # RLIMIT_FSIZE makes writes past 20 kB fail (EFBIG), as a full disk fails them
     # (ENOSPC); Python ignores the SIGXFSZ signal, so the write raises OSError.

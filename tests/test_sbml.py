@@ -609,7 +609,8 @@ E_total = {total}
     for state in ("E", "S", "C", "P"):
         assert a[0]["state"][state] == pytest.approx(b[0]["state"][state], rel=1e-9)
     assert a[0]["class"] == b[0]["class"]
-    assert sorted(re for re, _ in a[0]["eigenvalues"]) == pytest.approx(sorted(re for re, _ in b[0]["eigenvalues"]), rel=1e-7)
+    assert sorted(re for re, _ in a[0]["eigenvalues"]) == pytest.approx(
+        sorted(re for re, _ in b[0]["eigenvalues"]), rel=1e-7)
 
 
 def _study(folder: Path, name: str, text: str) -> Path:

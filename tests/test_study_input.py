@@ -19,7 +19,7 @@ from poise.cli import build_parser
 from poise.engine.runner import JOBS_PER_CORE, capped_jobs, usable_cores
 
 from helpers import run_cli, write_study
-from test_cli import GOOD as CLI_STUDY
+from conftest import GRAZING_STUDY as CLI_STUDY
 
 BIN = Path(sys.executable).parent
 
@@ -203,6 +203,7 @@ def test_an_sbml_study_without_parameters_runs_on_the_files_values(tmp_path):
 
 # --- the console script: no leaked library warnings, a clean public API ------------------------
 
+@pytest.mark.slow
 def test_scipy_sobol_balance_warning_does_not_reach_the_terminal(tmp_path):
     # 100 Newton starts: a Sobol' sequence cut at a size that is not a power of 2, for
     # which scipy warns; --jobs 2 with small chunks puts the finder in worker processes.

@@ -133,8 +133,8 @@ SMALL_DETERMINANT = """
 
 
 def _run(tmp_path, text, method, name):
-    study = load_study(write_study(tmp_path, text.replace("[sensitivity]", f'[solver]\nmethod = "{method}"\n[sensitivity]'),
-                                   f"{name}.toml"))
+    solver = f'[solver]\nmethod = "{method}"\n[sensitivity]'
+    study = load_study(write_study(tmp_path, text.replace("[sensitivity]", solver), f"{name}.toml"))
     return run_study(study, tmp_path / f"run_{name}", jobs=1, report=False)
 
 
@@ -252,7 +252,8 @@ def test_results_do_not_depend_on_units(tmp_path, name, draw):
     _compare(study, rescaled, units, time_unit, 64, tmp_path)
 
 
-HUGE_WHOLE_NUMBERS = STIFF.replace('x = "-c*x + y"', 'x = "-10000000000000000*x + 100000000000000000000*y"').replace("c = 1e6\n", "")
+HUGE_WHOLE_NUMBERS = STIFF.replace('x = "-c*x + y"', 'x = "-10000000000000000*x + 100000000000000000000*y"').replace(
+    "c = 1e6\n", "")
 
 
 @pytest.mark.parametrize("method", METHODS)

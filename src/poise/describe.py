@@ -17,7 +17,7 @@ def parameter_sets(study: Study, size: int | None = None) -> int:
 
 
 def describe_model(study: Study) -> dict:
-    """The model as JSON-ready data (the `check --json` contract of design.md)."""
+    """The model as JSON-ready data (`poise check --json`, docs/run-output.md)."""
     from poise.model.system import check_conservation
 
     check_conservation(study)

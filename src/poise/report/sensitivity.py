@@ -15,7 +15,7 @@ __all__ = ["ROUGH_WIDTH", "sobol_claims", "is_rough", "index_of", "sobol_table",
            "ranked_by_total", "priority_table", "priority_summary", "regional_results",
            "regional_table"]
 
-ROUGH_WIDTH = 0.1  # interval width beyond which an index needs more samples (design.md)
+ROUGH_WIDTH = 0.1  # interval width beyond which an index needs more samples (docs/methods.md, Statistics)
 
 PRIORITY_NOTE = (
     "Rank to pin down: by the total index ST, the share of the variance in whether the claim "

@@ -152,7 +152,7 @@ def classify(jacobians: np.ndarray, term_sizes: np.ndarray | None = None,
              rtol: float = 1e-9) -> Classification:
     """Classify steady states from their Jacobians.
 
-    Rules (design.md, "Classification rules"): all ``Re lambda < 0`` is a stable node,
+    Rules (docs/methods.md, the classification table): all ``Re lambda < 0`` is a stable node,
     or a stable focus when some eigenvalue is complex; all ``Re lambda > 0`` an unstable
     node or focus; both signs a saddle or saddle-focus (unstable); in two dimensions a
     pure imaginary pair is a center (undetermined); any other zero real part is

@@ -24,7 +24,7 @@ RENAMED = {"oscillatory": "complex_eigenvalues"}
 CLAIM_WORDS = frozenset(STEADY_FLAGS + STEADY_NUMBERS + AGGREGATORS + CONSTANTS + LONG_RUN_NAMES
                         + LONG_RUN_CALLS + tuple(RENAMED))
 
-# --- columns of the run's tables (design.md's run directory) -------------------------
+# --- columns of the run's tables (docs/run-output.md, the run directory) ---------------
 # samples.parquet and outcomes.parquet: one row per parameter set (plus one column per
 # uncertain parameter, and per claim in outcomes.parquet)
 SET_COLUMNS = ("sample_id", "block", "independent", "status", "reason", "n_steady", "n_stable",
