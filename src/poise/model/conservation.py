@@ -47,7 +47,7 @@ class LawProbe:
 
     def __init__(self, ode: Mapping[str, sympy.Expr], states: Sequence[str], seed: int = 0):
         self.states = list(states)
-        self.ode = {s: exact_numbers(sympy.sympify(ode[s])) for s in self.states}
+        self.ode = {s: exact_numbers(_expression(ode[s])) for s in self.states}
         n = len(self.states)
         self.evaluator = Evaluator(n + EXTRA_POINTS, PRIMES, seed)
         columns = [self.evaluator.evaluate(self.ode[s]) for s in self.states]
@@ -115,7 +115,7 @@ class LawProbe:
 
     def holds(self, vector: Sequence[sympy.Expr]) -> bool:
         """Whether c · f ≡ 0 for the coefficients `vector` (numbers, in column order)."""
-        coefficients = [self.evaluator.evaluate(sympy.sympify(c))[:, ~self.evaluator.bad]
+        coefficients = [self.evaluator.evaluate(_expression(c))[:, ~self.evaluator.bad]
                         for c in vector]
         p = PRIMES[:, None]
         total = np.zeros(self.values.shape[:2], dtype=np.int64)
@@ -247,8 +247,16 @@ def spans(declared: Sequence[Sequence[sympy.Expr]], law: Sequence[sympy.Expr]) -
     return rank_mod(base, prime) == rank_mod(extended, prime)
 
 
+def _expression(value) -> sympy.Expr:
+    """A sympy expression or number built by poise (parsed study expressions, Python
+    numbers, fractions) as a sympy object; text is refused, never parsed here."""
+    if isinstance(value, str):
+        raise TypeError("conservation analysis takes expressions built by poise, not text")
+    return sympy.sympify(value)  # safe: text refused above; numbers and sympy objects only
+
+
 def _residue(number: sympy.Expr, prime: int) -> int:
-    rational = exact(sympy.sympify(number))
+    rational = exact(_expression(number))
     return int(rational.p) % prime * pow(int(rational.q) % prime, -1, prime) % prime
 
 
